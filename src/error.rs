@@ -1,0 +1,232 @@
+//! One error type for the whole crate.
+//!
+//! Two families share the enum:
+//!
+//! * **invalid input** ([`Error::is_invalid_input`]): raised while building or loading a
+//!   problem, before any arithmetic. Each variant names the block (`H`, `A`, `c`, `b`) and
+//!   the position, so the fix is obvious. Recover by correcting the data.
+//! * **no solution** ([`Error::is_no_solution`]): the data are well formed but the KKT system
+//!   has no trustworthy solution (singular, infeasible, unbounded). The variant carries the
+//!   diagnosis. Recover by changing the model (drop or fix constraints, regularize H).
+//!
+//! Library code never panics on user data: every failure is one of these variants.
+
+use std::fmt;
+use std::path::PathBuf;
+
+use crate::solution::Inertia;
+
+/// Which block of the problem a message is about.
+#[derive(Copy, Clone, Debug, PartialEq, Eq, Hash)]
+pub enum Block {
+    /// The Hessian `H` (n×n, symmetric).
+    H,
+    /// The constraint matrix `A` (m×n).
+    A,
+    /// The linear term `c` (length n).
+    C,
+    /// The constraint right-hand side `b` (length m).
+    B,
+}
+
+impl fmt::Display for Block {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(match self {
+            Block::H => "H",
+            Block::A => "A",
+            Block::C => "c",
+            Block::B => "b",
+        })
+    }
+}
+
+/// Convenient alias used throughout the crate.
+pub type Result<T, E = Error> = std::result::Result<T, E>;
+
+/// Everything that can go wrong, with the context needed to act on it.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum Error {
+    /// A block does not have the size its neighbours imply.
+    #[error("dimension mismatch in block {block}: expected {expected_rows}×{expected_cols}, found {rows}×{cols}")]
+    DimensionMismatch {
+        /// The offending block.
+        block: Block,
+        /// Rows found.
+        rows: usize,
+        /// Columns found.
+        cols: usize,
+        /// Rows implied by the other blocks.
+        expected_rows: usize,
+        /// Columns implied by the other blocks.
+        expected_cols: usize,
+    },
+    /// A NaN or infinite entry (positions are 0-based; vectors use column 0).
+    #[error("non-finite value {value} in block {block} at row {row}, column {col} (0-based)")]
+    NonFinite {
+        /// The offending block.
+        block: Block,
+        /// Row (0-based).
+        row: usize,
+        /// Column (0-based).
+        col: usize,
+        /// The value found (NaN or ±inf).
+        value: f64,
+    },
+    /// A full `H` differs from its transpose by more than the documented tolerance.
+    #[error(
+        "H is not symmetric: H[{row},{col}] = {upper:e} but H[{col},{row}] = {lower:e} \
+         (relative gap {relative_gap:.3e} > tolerance {tolerance:.1e}; 0-based, worst pair)"
+    )]
+    NotSymmetric {
+        /// Row of the worst pair (0-based, row < col).
+        row: usize,
+        /// Column of the worst pair (0-based).
+        col: usize,
+        /// `H[row, col]`.
+        upper: f64,
+        /// `H[col, row]`.
+        lower: f64,
+        /// `|upper - lower| / max|H|`.
+        relative_gap: f64,
+        /// The tolerance that was exceeded.
+        tolerance: f64,
+    },
+    /// An entry given for one triangle of `H` lies in the other triangle.
+    #[error("H was declared as its {triangle} triangle but has an entry at row {row}, column {col} (0-based)")]
+    WrongTriangle {
+        /// The declared triangle (`"lower"` or `"upper"`).
+        triangle: &'static str,
+        /// Row (0-based).
+        row: usize,
+        /// Column (0-based).
+        col: usize,
+    },
+    /// A sparse entry lies outside the declared shape.
+    #[error("index out of range in block {block}: entry at row {row}, column {col} (0-based) for a {nrows}×{ncols} block")]
+    IndexOutOfRange {
+        /// The offending block.
+        block: Block,
+        /// Row (0-based).
+        row: usize,
+        /// Column (0-based).
+        col: usize,
+        /// Declared rows.
+        nrows: usize,
+        /// Declared columns.
+        ncols: usize,
+    },
+    /// A row-major slice has the wrong length for the declared shape.
+    #[error("block {block}: {len} values given for a {rows}×{cols} block (expected {expected})")]
+    WrongLength {
+        /// The offending block.
+        block: Block,
+        /// Values given.
+        len: usize,
+        /// Declared rows.
+        rows: usize,
+        /// Declared columns.
+        cols: usize,
+        /// Values expected.
+        expected: usize,
+    },
+    /// A refactorization was given a problem of another shape or sparsity pattern.
+    #[error("refactorization needs the same structure: {detail}")]
+    StructureChanged {
+        /// What differs.
+        detail: String,
+    },
+    /// A method option that does not exist or does not apply.
+    #[error("{0}")]
+    InvalidOption(String),
+    /// A file could not be read or written.
+    #[error("{path}: {source}")]
+    Io {
+        /// The file.
+        path: PathBuf,
+        /// The underlying error.
+        source: std::io::Error,
+    },
+    /// A file was read but its content is malformed.
+    #[error("{path}: {message}")]
+    Parse {
+        /// The file.
+        path: PathBuf,
+        /// What is wrong, as precisely as the parser could say.
+        message: String,
+    },
+    /// A file's content was parsed but is invalid as a problem block.
+    #[error("{path}: {source}")]
+    InFile {
+        /// The file.
+        path: PathBuf,
+        /// The validation error for the block stored in it.
+        source: Box<Error>,
+    },
+    /// The KKT matrix is singular (to the documented pivot tolerance): no unique
+    /// stationary point. Recover by removing redundant constraints or regularizing `H`.
+    #[error(
+        "the KKT matrix is singular: {zero} zero pivot(s), inertia (+{positive}, -{negative}, 0:{zero}); {detail}",
+        positive = inertia.positive, negative = inertia.negative, zero = inertia.zero
+    )]
+    Singular {
+        /// Inertia of the KKT matrix as computed (zero count > 0).
+        inertia: Inertia,
+        /// What the singularity most likely means for the problem.
+        detail: String,
+    },
+    /// The solve finished but its backward error stayed above the acceptance level even
+    /// after refinement: the answer is not trustworthy (K is numerically singular).
+    #[error(
+        "the computed solution is not accurate: backward error {backward_error:.2e} after {steps} refinement step(s) \
+         exceeds the acceptance level {limit:.1e}; the KKT matrix is numerically singular or extremely ill-conditioned"
+    )]
+    Inaccurate {
+        /// Normwise backward error reached.
+        backward_error: f64,
+        /// Refinement steps taken.
+        steps: usize,
+        /// Acceptance level (`Options::accept_backward_error`).
+        limit: f64,
+    },
+}
+
+impl Error {
+    /// True for errors caused by malformed input (CLI exit code 2).
+    pub fn is_invalid_input(&self) -> bool {
+        !self.is_no_solution()
+    }
+
+    /// True for well-formed problems without a trustworthy solution (CLI exit code 3).
+    pub fn is_no_solution(&self) -> bool {
+        matches!(self, Error::Singular { .. } | Error::Inaccurate { .. })
+    }
+
+    /// Short machine-readable status word used by the command line's JSON.
+    pub fn status(&self) -> &'static str {
+        match self {
+            Error::Singular { .. } | Error::Inaccurate { .. } => "singular",
+            _ => "invalid_input",
+        }
+    }
+
+    /// The problem block an input error is about, when there is one.
+    pub fn block(&self) -> Option<Block> {
+        match self {
+            Error::DimensionMismatch { block, .. }
+            | Error::NonFinite { block, .. }
+            | Error::IndexOutOfRange { block, .. }
+            | Error::WrongLength { block, .. } => Some(*block),
+            Error::NotSymmetric { .. } | Error::WrongTriangle { .. } => Some(Block::H),
+            Error::InFile { source, .. } => source.block(),
+            _ => None,
+        }
+    }
+
+    pub(crate) fn in_file(self, path: impl Into<PathBuf>) -> Error {
+        Error::InFile {
+            path: path.into(),
+            source: Box::new(self),
+        }
+    }
+}

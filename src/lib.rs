@@ -1,0 +1,98 @@
+//! # tangency
+//!
+//! Equality-constrained quadratic programs and their KKT systems:
+//!
+//! ```text
+//! minimize ½xᵀHx + cᵀx   subject to   Ax = b        (H: n×n symmetric, A: m×n)
+//! ```
+//!
+//! ```
+//! use tangency::{solve, Options, ProblemBuilder, Triangle, Verdict};
+//!
+//! // Hock & Schittkowski (1981), problem 28: x* = (1/2, −1/2, 1/2), f* = 0.
+//! let problem = ProblemBuilder::new()
+//!     .hessian_row_major(3, &[2., 2., 0., 2., 4., 2., 0., 2., 2.], Triangle::Full)
+//!     .constraints_row_major(1, 3, &[1., 2., 3.])
+//!     .rhs(&[1.])
+//!     .build()?;
+//! let s = solve(&problem, &Options::default())?;
+//! assert_eq!(s.verdict, Some(Verdict::Minimizer));
+//! assert!((s.x[0] - 0.5).abs() < 1e-14 && (s.x[1] + 0.5).abs() < 1e-14);
+//! assert!(s.backward_error < 1e-15);
+//! println!("{}", tangency::report::human(&problem, &s));
+//! # Ok::<(), tangency::Error>(())
+//! ```
+//!
+//! ## Overview
+//!
+//! The pipeline is *problem → plan → factorization → solution*:
+//!
+//! * [`ProblemBuilder`] takes `H` and `A` dense (faer `Mat`, row-major slices) or sparse
+//!   (triplets, faer `SparseColMat`, nalgebra-sparse `CscMatrix`/`CooMatrix`), `H` as one
+//!   triangle or full, and validates everything at `build()`.
+//! * [`Plan::analyze`] picks a method from the structure (once per structure).
+//! * [`Plan::factor`] does the numeric work; [`Factorization::refactor`] repeats it for new
+//!   values of the same structure without a new analysis.
+//! * [`Factorization::solve_with`] solves for any new `(c, b)` without refactoring; each
+//!   solve is refined on the original K and certified before it is returned.
+//!
+//! ## Conventions
+//!
+//! * KKT layout: unknowns `[x; y]`, `K = [H Aᵀ; A 0]`, right-hand side `[−c; b]`.
+//! * Multiplier sign: the Lagrangian is `L(x, y) = ½xᵀHx + cᵀx + yᵀ(Ax − b)`, so
+//!   `Hx + c + Aᵀy = 0` at the solution and `∂f*/∂b = −y`: **raising `bᵢ` by one unit changes
+//!   the optimal objective by `−yᵢ`** to first order.
+//! * Verdict (Nocedal & Wright 2006, ch. 16; Gould 1985): inertia of K equal to `(n, m, 0)`
+//!   ⇔ `A` has full row rank and the reduced Hessian is positive definite ⇔ the point is the
+//!   unique global minimizer ([`Verdict::Minimizer`]). Nonsingular K with another inertia:
+//!   [`Verdict::Saddle`]. Singular K: [`Error::Singular`].
+//! * Triangles: a [`Triangle::Lower`] or [`Triangle::Upper`] dense `H` reads only that
+//!   triangle; sparse input must not have entries in the other triangle. A
+//!   [`Triangle::Full`] `H` must be symmetric within
+//!   [`problem::DEFAULT_SYMMETRY_TOLERANCE`] (relative to `max|H|`).
+//!
+//! ## Certificates
+//!
+//! Every [`Solution`] carries the primal residual `‖Ax − b‖∞`, the dual residual
+//! `‖Hx + c + Aᵀy‖∞`, the normwise backward error of the KKT solve on the original
+//! (unscaled) K, the refinement steps taken, the inertia and the verdict. A solve whose
+//! backward error stays above [`solver::DEFAULT_ACCEPT_BACKWARD_ERROR`] after refinement is
+//! refused ([`Error::Inaccurate`]) instead of being returned.
+//!
+//! ## Performance
+//!
+//! The dense backend is faer's blocked Bunch–Kaufman LBLᵀ, about `N³/3` flops for `N = n + m`,
+//! run on all cores. See `benches/` and the README for measured figures.
+//!
+//! ## Untrusted input
+//!
+//! Builders and the Matrix Market loader never panic on data: wrong sizes, NaN/Inf,
+//! asymmetry, entries out of range or in the wrong triangle and malformed files are
+//! [`Error`] values naming the block (and file), row and column. Functions that take
+//! vectors of a length fixed by the problem (for example [`Problem::objective`]) document
+//! that they panic on a wrong length: that is a programming error, not a data error.
+//!
+//! ## Current state
+//!
+//! Implemented: dense LBLᵀ with equilibration, inertia, verdict, refinement; builders;
+//! Matrix Market I/O; the `tangency` command line. Not yet: sparse LDLᵀ, Schur-complement
+//! and null-space methods, rank analysis that names dependent constraints, condition
+//! estimates and sensitivities, iterative methods (these are planned; singular KKT
+//! matrices are reported as [`Error::Singular`] without finer diagnosis for now).
+#![deny(missing_docs)]
+
+pub mod backend;
+pub mod demo;
+pub mod error;
+pub mod io;
+pub mod kkt;
+pub mod problem;
+pub mod report;
+pub mod solution;
+pub mod solver;
+
+pub use backend::dense_lblt::{DenseParams, Pivoting};
+pub use error::{Block, Error, Result};
+pub use problem::{Matrix, Problem, ProblemBuilder, Triangle};
+pub use solution::{Inertia, MethodUsed, Solution, Timing, Verdict};
+pub use solver::{solve, Factorization, Method, Options, Plan};

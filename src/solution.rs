@@ -1,0 +1,143 @@
+//! What a solve returns: the point, the multipliers, the verdict and the certificate.
+
+use std::fmt;
+
+/// Eigenvalue sign counts of the KKT matrix (Sylvester's law of inertia).
+#[derive(Copy, Clone, Debug, PartialEq, Eq, Default)]
+pub struct Inertia {
+    /// Positive eigenvalues.
+    pub positive: usize,
+    /// Negative eigenvalues.
+    pub negative: usize,
+    /// Zero eigenvalues (to the documented pivot tolerance).
+    pub zero: usize,
+}
+
+impl Inertia {
+    /// Builds an inertia triple.
+    pub fn new(positive: usize, negative: usize, zero: usize) -> Self {
+        Inertia {
+            positive,
+            negative,
+            zero,
+        }
+    }
+}
+
+impl fmt::Display for Inertia {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "(+{}, -{}, 0:{})", self.positive, self.negative, self.zero)
+    }
+}
+
+/// What kind of stationary point was computed.
+#[derive(Copy, Clone, Debug, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum Verdict {
+    /// The unique global minimizer: inertia of K is (n, m, 0), i.e. `A` has full row rank
+    /// and the reduced Hessian `ZᵀHZ` is positive definite.
+    Minimizer,
+    /// K is nonsingular with another inertia: a stationary point (KKT point) that is not a
+    /// minimizer; the objective is unbounded below on the feasible set.
+    Saddle,
+    /// Minimizers exist but are not unique: the returned point is one of them (see the
+    /// solution's notes for the direction of non-uniqueness).
+    NonUnique,
+}
+
+impl Verdict {
+    /// The word used by the command line's JSON.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Verdict::Minimizer => "minimizer",
+            Verdict::Saddle => "saddle",
+            Verdict::NonUnique => "non_unique",
+        }
+    }
+
+    /// One sentence for people.
+    pub fn explain(self) -> &'static str {
+        match self {
+            Verdict::Minimizer => {
+                "unique global minimizer: the constraints are independent and the objective curves upward along every feasible direction"
+            }
+            Verdict::Saddle => {
+                "stationary point, NOT a minimizer: the objective curves downward along some feasible direction and is unbounded below on the feasible set"
+            }
+            Verdict::NonUnique => "a minimizer, but not the only one: the objective is flat along some feasible direction",
+        }
+    }
+}
+
+impl fmt::Display for Verdict {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// Which backend produced a factorization.
+#[derive(Copy, Clone, Debug, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum MethodUsed {
+    /// Dense symmetric-indefinite LBLᵀ (Bunch–Kaufman family).
+    DenseLblt,
+}
+
+impl MethodUsed {
+    /// The word used by the command line.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            MethodUsed::DenseLblt => "dense",
+        }
+    }
+}
+
+impl fmt::Display for MethodUsed {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// Wall-clock seconds spent in each phase.
+#[derive(Copy, Clone, Debug, Default, PartialEq)]
+pub struct Timing {
+    /// Symbolic analysis (structure, ordering, method choice).
+    pub analyze_s: f64,
+    /// Numeric factorization (including KKT assembly and scaling).
+    pub factor_s: f64,
+    /// Triangular solves, refinement and certificate.
+    pub solve_s: f64,
+}
+
+/// A computed stationary point with its certificate.
+///
+/// Sign convention: `Hx + c + Aᵀy = 0` and `Ax = b`; raising `bᵢ` by one unit changes the
+/// optimal objective by `−yᵢ` to first order.
+#[derive(Clone, Debug)]
+pub struct Solution {
+    /// Primal point (length n).
+    pub x: Vec<f64>,
+    /// Multipliers (length m), `Hx + c + Aᵀy = 0`.
+    pub y: Vec<f64>,
+    /// `½xᵀHx + cᵀx`.
+    pub objective: f64,
+    /// `‖Ax − b‖∞`.
+    pub primal_residual: f64,
+    /// `‖Hx + c + Aᵀy‖∞`.
+    pub dual_residual: f64,
+    /// Normwise backward error of the KKT solve,
+    /// `‖r‖∞ / (‖K‖∞‖z‖∞ + ‖rhs‖∞)` with `r = rhs − Kz` on the original (unscaled) K.
+    pub backward_error: f64,
+    /// Iterative refinement corrections applied.
+    pub refinement_steps: usize,
+    /// Inertia of K, when the method observed it.
+    pub inertia: Option<Inertia>,
+    /// What kind of point `x` is, when it could be certified.
+    pub verdict: Option<Verdict>,
+    /// The backend that produced the factorization.
+    pub method: MethodUsed,
+    /// Seconds per phase.
+    pub timing: Timing,
+    /// Remarks a user should read (fallbacks taken, accuracy concerns).
+    pub notes: Vec<String>,
+}

@@ -1,0 +1,415 @@
+//! The pipeline: [`Plan::analyze`] once per structure, [`Plan::factor`] whenever values
+//! change ([`Factorization::refactor`] reuses everything), then
+//! [`Factorization::solve`] for any number of right-hand sides. Every solve is refined on
+//! the original K and certified (residuals, backward error) before it is returned.
+
+use std::str::FromStr;
+use std::time::Instant;
+
+use faer::dyn_stack::{MemBuffer, MemStack};
+use faer::Mat;
+
+use crate::backend::dense_lblt::{DenseLblt, DenseParams};
+use crate::backend::KktBackend;
+use crate::error::{Block, Error, Result};
+use crate::kkt;
+use crate::problem::{check_vector, Problem};
+use crate::solution::{Inertia, MethodUsed, Solution, Timing, Verdict};
+
+/// Which factorization to use.
+#[derive(Copy, Clone, Debug, PartialEq, Eq, Default)]
+#[non_exhaustive]
+pub enum Method {
+    /// Let the analysis choose (today: dense LBLᵀ for every problem).
+    #[default]
+    Auto,
+    /// Dense symmetric-indefinite LBLᵀ.
+    Dense,
+}
+
+impl Method {
+    /// Every method name the command line accepts.
+    pub const NAMES: &'static [&'static str] = &["auto", "dense"];
+}
+
+impl FromStr for Method {
+    type Err = Error;
+    fn from_str(s: &str) -> Result<Self> {
+        match s {
+            "auto" => Ok(Method::Auto),
+            "dense" => Ok(Method::Dense),
+            other => Err(Error::InvalidOption(format!(
+                "unknown method '{other}'; known methods: {}",
+                Method::NAMES.join(", ")
+            ))),
+        }
+    }
+}
+
+/// Default number of refinement corrections at most.
+pub const DEFAULT_MAX_REFINEMENT_STEPS: usize = 10;
+/// Default refinement target for the normwise backward error: `4ε ≈ 8.9e-16`.
+pub const DEFAULT_REFINEMENT_TARGET: f64 = 4.0 * f64::EPSILON;
+/// Default acceptance level: a backward error above `√ε ≈ 1.5e-8` after refinement is
+/// refused with [`Error::Inaccurate`] rather than returned.
+pub const DEFAULT_ACCEPT_BACKWARD_ERROR: f64 = 1.490_116_119_384_765_6e-8;
+
+/// Settings of the whole pipeline (public fields, `..Default::default()` friendly).
+///
+/// ```
+/// use tangency::{Method, Options};
+/// let opts = Options { method: Method::Dense, max_refinement_steps: 3, ..Default::default() };
+/// assert_eq!(opts.refinement_target, tangency::solver::DEFAULT_REFINEMENT_TARGET);
+/// ```
+#[derive(Copy, Clone, Debug)]
+pub struct Options {
+    /// Factorization method. Default: [`Method::Auto`].
+    pub method: Method,
+    /// Settings of the dense backend.
+    pub dense: DenseParams,
+    /// Maximum refinement corrections. Default: [`DEFAULT_MAX_REFINEMENT_STEPS`].
+    pub max_refinement_steps: usize,
+    /// Stop refining once the backward error is at most this. Default:
+    /// [`DEFAULT_REFINEMENT_TARGET`].
+    pub refinement_target: f64,
+    /// Refuse solutions whose backward error stays above this. Default:
+    /// [`DEFAULT_ACCEPT_BACKWARD_ERROR`].
+    pub accept_backward_error: f64,
+}
+
+impl Default for Options {
+    fn default() -> Self {
+        Options {
+            method: Method::Auto,
+            dense: DenseParams::default(),
+            max_refinement_steps: DEFAULT_MAX_REFINEMENT_STEPS,
+            refinement_target: DEFAULT_REFINEMENT_TARGET,
+            accept_backward_error: DEFAULT_ACCEPT_BACKWARD_ERROR,
+        }
+    }
+}
+
+/// The result of the symbolic analysis: sizes, the method chosen and why.
+#[derive(Clone, Debug)]
+pub struct Plan {
+    n: usize,
+    m: usize,
+    method: MethodUsed,
+    reason: String,
+    options: Options,
+    analyze_s: f64,
+}
+
+impl Plan {
+    /// Analyzes the structure of `problem` and picks a method.
+    pub fn analyze(problem: &Problem, options: &Options) -> Result<Plan> {
+        let t = Instant::now();
+        let (method, reason) = match options.method {
+            Method::Dense => (MethodUsed::DenseLblt, "requested".to_string()),
+            Method::Auto => (
+                MethodUsed::DenseLblt,
+                "dense LBLᵀ is the only factorization available for this structure".to_string(),
+            ),
+        };
+        Ok(Plan {
+            n: problem.n(),
+            m: problem.m(),
+            method,
+            reason,
+            options: *options,
+            analyze_s: t.elapsed().as_secs_f64(),
+        })
+    }
+
+    /// The method the analysis chose.
+    pub fn method(&self) -> MethodUsed {
+        self.method
+    }
+
+    /// Why the method was chosen, in words.
+    pub fn reason(&self) -> &str {
+        &self.reason
+    }
+
+    /// Numeric factorization of `problem` (which must have the analyzed structure).
+    pub fn factor(&self, problem: &Problem) -> Result<Factorization> {
+        self.check_structure(problem)?;
+        let t = Instant::now();
+        let mut backend: Box<dyn KktBackend> = match self.method {
+            MethodUsed::DenseLblt => Box::new(DenseLblt::new(problem, self.options.dense)),
+        };
+        backend.factor(problem)?;
+        let factor_s = t.elapsed().as_secs_f64();
+        Ok(Factorization {
+            plan: self.clone(),
+            problem: problem.clone(),
+            norm_k: kkt::norm_inf(problem),
+            backend,
+            factor_s,
+        })
+    }
+
+    fn check_structure(&self, problem: &Problem) -> Result<()> {
+        if problem.n() != self.n || problem.m() != self.m {
+            return Err(Error::StructureChanged {
+                detail: format!(
+                    "the plan is for n = {}, m = {} but the problem has n = {}, m = {}",
+                    self.n,
+                    self.m,
+                    problem.n(),
+                    problem.m()
+                ),
+            });
+        }
+        Ok(())
+    }
+}
+
+/// A numeric factorization of one KKT matrix, ready for any number of solves.
+///
+/// ```
+/// use tangency::{Options, Plan, ProblemBuilder, Triangle, Verdict};
+/// let p = ProblemBuilder::new()
+///     .hessian_row_major(2, &[2.0, 0.0, 0.0, 2.0], Triangle::Full)
+///     .constraints_row_major(1, 2, &[1.0, 1.0])
+///     .rhs(&[1.0])
+///     .build()?;
+/// let plan = Plan::analyze(&p, &Options::default())?;
+/// let f = plan.factor(&p)?;
+/// let s1 = f.solve()?;                          // the problem's own c and b
+/// assert_eq!(s1.verdict, Some(Verdict::Minimizer));
+/// let s2 = f.solve_with(&[1.0, 0.0], &[2.0])?;  // new data, same factorization
+/// assert!((s2.x[0] + s2.x[1] - 2.0).abs() < 1e-14);
+/// # Ok::<(), tangency::Error>(())
+/// ```
+#[derive(Debug)]
+pub struct Factorization {
+    plan: Plan,
+    problem: Problem,
+    norm_k: f64,
+    backend: Box<dyn KktBackend>,
+    factor_s: f64,
+}
+
+impl Factorization {
+    /// The plan this factorization was made from.
+    pub fn plan(&self) -> &Plan {
+        &self.plan
+    }
+
+    /// The problem (values as of the last factorization).
+    pub fn problem(&self) -> &Problem {
+        &self.problem
+    }
+
+    /// Inertia of K, when the method observes it.
+    pub fn inertia(&self) -> Option<Inertia> {
+        self.backend.inertia()
+    }
+
+    /// `‖K‖∞` of the original K.
+    pub fn norm_inf(&self) -> f64 {
+        self.norm_k
+    }
+
+    /// The backend, for diagnostics that need raw solves with K.
+    pub fn backend(&self) -> &dyn KktBackend {
+        &*self.backend
+    }
+
+    /// Seconds spent in the last numeric factorization.
+    pub fn factor_seconds(&self) -> f64 {
+        self.factor_s
+    }
+
+    /// Factors new values of `H` and `A` with the same dimensions (and sparsity pattern)
+    /// without a new analysis, reusing all storage. `c` and `b` are taken from `problem`.
+    pub fn refactor(&mut self, problem: &Problem) -> Result<()> {
+        self.plan.check_structure(problem)?;
+        self.problem.update_values(problem)?;
+        let t = Instant::now();
+        self.backend.factor(&self.problem)?;
+        self.norm_k = kkt::norm_inf(&self.problem);
+        self.factor_s = t.elapsed().as_secs_f64();
+        Ok(())
+    }
+
+    /// The verdict implied by the inertia, or the singularity error.
+    pub fn verdict(&self) -> Result<Option<Verdict>> {
+        let Some(inertia) = self.backend.inertia() else {
+            return Ok(None);
+        };
+        let (n, m) = (self.problem.n(), self.problem.m());
+        if inertia.zero > 0 {
+            return Err(Error::Singular {
+                inertia,
+                detail: singular_detail(n, m, inertia),
+            });
+        }
+        if self.backend.regularized_pivots() > 0 {
+            return Ok(None);
+        }
+        Ok(Some(if inertia == Inertia::new(n, m, 0) {
+            Verdict::Minimizer
+        } else {
+            Verdict::Saddle
+        }))
+    }
+
+    /// Solves with the problem's own `c` and `b`.
+    pub fn solve(&self) -> Result<Solution> {
+        self.solve_with(&self.problem.c, &self.problem.b)
+    }
+
+    /// Solves for new `c` (length n) and `b` (length m) with the same factorization.
+    pub fn solve_with(&self, c: &[f64], b: &[f64]) -> Result<Solution> {
+        check_vector(Block::C, c, self.problem.n())?;
+        check_vector(Block::B, b, self.problem.m())?;
+        let verdict = self.verdict()?;
+        let t = Instant::now();
+        let rhs = kkt::rhs(c, b);
+        let mut z = Mat::<f64>::zeros(rhs.len(), 1);
+        let mut buf = MemBuffer::new(self.backend.solve_scratch(1));
+        let stack = MemStack::new(&mut buf);
+        for (i, v) in rhs.iter().enumerate() {
+            z[(i, 0)] = *v;
+        }
+        self.backend.solve_in_place(z.as_mut(), stack);
+        let mut z: Vec<f64> = (0..rhs.len()).map(|i| z[(i, 0)]).collect();
+        let (backward_error, steps) = self.refine(&rhs, &mut z, stack);
+        if !(backward_error <= self.plan.options.accept_backward_error) {
+            return Err(Error::Inaccurate {
+                backward_error,
+                steps,
+                limit: self.plan.options.accept_backward_error,
+            });
+        }
+        let n = self.problem.n();
+        let y = z.split_off(n);
+        let x = z;
+        let mut probe = self.problem.clone();
+        probe.c.copy_from_slice(c);
+        probe.b.copy_from_slice(b);
+        let (primal_residual, dual_residual) = probe.residuals(&x, &y);
+        let objective = probe.objective(&x);
+        let mut notes = Vec::new();
+        if backward_error > 1e3 * f64::EPSILON {
+            notes.push(format!(
+                "backward error {backward_error:.1e} stayed above the refinement target after {steps} step(s): \
+                 K is ill-conditioned, trust fewer digits"
+            ));
+        }
+        Ok(Solution {
+            x,
+            y,
+            objective,
+            primal_residual,
+            dual_residual,
+            backward_error,
+            refinement_steps: steps,
+            inertia: self.backend.inertia(),
+            verdict,
+            method: self.backend.method(),
+            timing: Timing {
+                analyze_s: self.plan.analyze_s,
+                factor_s: self.factor_s,
+                solve_s: t.elapsed().as_secs_f64(),
+            },
+            notes,
+        })
+    }
+
+    /// Normwise backward error `‖rhs − Kz‖∞ / (‖K‖∞‖z‖∞ + ‖rhs‖∞)` on the original K.
+    pub fn backward_error(&self, rhs: &[f64], z: &[f64]) -> f64 {
+        let mut r = vec![0.0; rhs.len()];
+        kkt::residual(&self.problem, z, rhs, &mut r);
+        normwise(&r, self.norm_k, z, rhs)
+    }
+
+    /// Iterative refinement on the original K: correct `z` until the backward error is at
+    /// most the target, stops improving (by at least a factor 2), or the step limit is
+    /// reached. Returns the final backward error and the corrections applied.
+    fn refine(&self, rhs: &[f64], z: &mut [f64], stack: &mut MemStack) -> (f64, usize) {
+        let opts = &self.plan.options;
+        let dim = rhs.len();
+        let mut r = vec![0.0; dim];
+        let mut col = Mat::<f64>::zeros(dim, 1);
+        let mut best = z.to_vec();
+        kkt::residual(&self.problem, z, rhs, &mut r);
+        let mut omega = normwise(&r, self.norm_k, z, rhs);
+        let mut steps = 0;
+        while steps < opts.max_refinement_steps && omega > opts.refinement_target && omega.is_finite() {
+            for i in 0..dim {
+                col[(i, 0)] = r[i];
+            }
+            self.backend.solve_in_place(col.as_mut(), stack);
+            for i in 0..dim {
+                z[i] += col[(i, 0)];
+            }
+            kkt::residual(&self.problem, z, rhs, &mut r);
+            let next = normwise(&r, self.norm_k, z, rhs);
+            steps += 1;
+            if !(next < omega) {
+                // No progress: keep the better iterate.
+                z.copy_from_slice(&best);
+                break;
+            }
+            best.copy_from_slice(z);
+            let improved_enough = next <= 0.5 * omega;
+            omega = next;
+            if !improved_enough {
+                break;
+            }
+        }
+        (omega, steps)
+    }
+}
+
+fn normwise(r: &[f64], norm_k: f64, z: &[f64], rhs: &[f64]) -> f64 {
+    let inf = |v: &[f64]| v.iter().fold(0.0f64, |a, x| a.max(x.abs()));
+    let denom = norm_k * inf(z) + inf(rhs);
+    let num = inf(r);
+    if num == 0.0 {
+        0.0
+    } else if denom == 0.0 || !num.is_finite() {
+        f64::INFINITY
+    } else {
+        num / denom
+    }
+}
+
+fn singular_detail(n: usize, m: usize, inertia: Inertia) -> String {
+    if m > n {
+        format!("there are more constraints ({m}) than variables ({n}), so at least {} constraint row(s) depend on the others", m - n)
+    } else if inertia.negative < m {
+        "either some constraint rows are linearly dependent (redundant or contradictory), \
+         or the objective is flat along a feasible direction (singular reduced Hessian)"
+            .to_string()
+    } else {
+        "the objective is flat along a feasible direction (singular reduced Hessian): \
+         minimizers are not unique, or the objective is unbounded below"
+            .to_string()
+    }
+}
+
+/// One call from problem to certified solution: analyze, factor, solve.
+///
+/// ```
+/// use tangency::{solve, Options, ProblemBuilder, Triangle};
+/// // Nocedal & Wright (2006), Example 16.2: x* = (2, −1, 1), y* = (−3, 2) in our convention.
+/// let p = ProblemBuilder::new()
+///     .hessian_row_major(3, &[6., 2., 1., 2., 5., 2., 1., 2., 4.], Triangle::Full)
+///     .linear(&[-8., -3., -3.])
+///     .constraints_row_major(2, 3, &[1., 0., 1., 0., 1., 1.])
+///     .rhs(&[3., 0.])
+///     .build()?;
+/// let s = solve(&p, &Options::default())?;
+/// assert!((s.x[0] - 2.0).abs() < 1e-13 && (s.y[0] + 3.0).abs() < 1e-13);
+/// assert!((s.objective + 3.5).abs() < 1e-13);
+/// # Ok::<(), tangency::Error>(())
+/// ```
+pub fn solve(problem: &Problem, options: &Options) -> Result<Solution> {
+    let plan = Plan::analyze(problem, options)?;
+    let f = plan.factor(problem)?;
+    f.solve()
+}
