@@ -95,4 +95,4 @@ pub use backend::dense_lblt::{DenseParams, Pivoting};
 pub use error::{Block, Error, Result};
 pub use problem::{Matrix, Problem, ProblemBuilder, Triangle};
 pub use solution::{Inertia, MethodUsed, Solution, Timing, Verdict};
-pub use solver::{solve, Factorization, Method, Options, Plan};
+pub use solver::{solve, Factorization, Method, Options, Plan, Workspace};

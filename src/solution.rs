@@ -98,6 +98,27 @@ impl fmt::Display for MethodUsed {
     }
 }
 
+impl Solution {
+    /// A zeroed solution with the right sizes, to be filled by
+    /// [`Factorization::solve_into`](crate::Factorization::solve_into).
+    pub fn empty(n: usize, m: usize, method: MethodUsed) -> Solution {
+        Solution {
+            x: vec![0.0; n],
+            y: vec![0.0; m],
+            objective: 0.0,
+            primal_residual: 0.0,
+            dual_residual: 0.0,
+            backward_error: 0.0,
+            refinement_steps: 0,
+            inertia: None,
+            verdict: None,
+            method,
+            timing: Timing::default(),
+            notes: Vec::new(),
+        }
+    }
+}
+
 /// Wall-clock seconds spent in each phase.
 #[derive(Copy, Clone, Debug, Default, PartialEq)]
 pub struct Timing {

@@ -262,21 +262,71 @@ impl Factorization {
     }
 
     /// Solves for new `c` (length n) and `b` (length m) with the same factorization.
+    /// Allocates a [`Workspace`] and the [`Solution`]; use [`solve_into`](Self::solve_into)
+    /// in loops.
     pub fn solve_with(&self, c: &[f64], b: &[f64]) -> Result<Solution> {
-        check_vector(Block::C, c, self.problem.n())?;
-        check_vector(Block::B, b, self.problem.m())?;
+        let mut ws = self.workspace();
+        let mut out = Solution::empty(self.problem.n(), self.problem.m(), self.backend.method());
+        self.solve_into(c, b, &mut ws, &mut out)?;
+        Ok(out)
+    }
+
+    /// Solves for each column pair of `c` (n×k) and `b` (m×k), reusing one workspace.
+    pub fn solve_many(&self, c: faer::MatRef<'_, f64>, b: faer::MatRef<'_, f64>) -> Result<Vec<Solution>> {
+        let (n, m) = (self.problem.n(), self.problem.m());
+        if c.nrows() != n || b.nrows() != m || c.ncols() != b.ncols() {
+            return Err(Error::DimensionMismatch {
+                block: if c.nrows() != n { Block::C } else { Block::B },
+                rows: if c.nrows() != n { c.nrows() } else { b.nrows() },
+                cols: if c.nrows() != n { c.ncols() } else { b.ncols() },
+                expected_rows: if c.nrows() != n { n } else { m },
+                expected_cols: c.ncols(),
+            });
+        }
+        let mut ws = self.workspace();
+        let (mut cj, mut bj) = (vec![0.0; n], vec![0.0; m]);
+        let mut all = Vec::with_capacity(c.ncols());
+        for j in 0..c.ncols() {
+            cj.iter_mut().enumerate().for_each(|(i, v)| *v = c[(i, j)]);
+            bj.iter_mut().enumerate().for_each(|(i, v)| *v = b[(i, j)]);
+            let mut out = Solution::empty(n, m, self.backend.method());
+            self.solve_into(&cj, &bj, &mut ws, &mut out)?;
+            all.push(out);
+        }
+        Ok(all)
+    }
+
+    /// Scratch memory for [`solve_into`](Self::solve_into), sized for this factorization.
+    pub fn workspace(&self) -> Workspace {
+        let (n, m) = (self.problem.n(), self.problem.m());
+        Workspace::new(n, m, self.backend.solve_scratch(1))
+    }
+
+    /// Solves for `c` and `b` into `out`, using only the memory in `ws` and `out`: no heap
+    /// allocation when `out` already has the right sizes and the solve succeeds without
+    /// notes (the steady state of a control loop).
+    pub fn solve_into(&self, c: &[f64], b: &[f64], ws: &mut Workspace, out: &mut Solution) -> Result<()> {
+        let (n, m) = (self.problem.n(), self.problem.m());
+        check_vector(Block::C, c, n)?;
+        check_vector(Block::B, b, m)?;
+        ws.check(n, m)?;
         let verdict = self.verdict()?;
         let t = Instant::now();
-        let rhs = kkt::rhs(c, b);
-        let mut z = Mat::<f64>::zeros(rhs.len(), 1);
-        let mut buf = MemBuffer::new(self.backend.solve_scratch(1));
-        let stack = MemStack::new(&mut buf);
-        for (i, v) in rhs.iter().enumerate() {
-            z[(i, 0)] = *v;
+        let Workspace {
+            buf, rhs, z, r, best, col, ..
+        } = ws;
+        let stack = MemStack::new(buf);
+        for (dst, v) in rhs.iter_mut().zip(c.iter().map(|v| -v).chain(b.iter().copied())) {
+            *dst = v;
         }
-        self.backend.solve_in_place(z.as_mut(), stack);
-        let mut z: Vec<f64> = (0..rhs.len()).map(|i| z[(i, 0)]).collect();
-        let (backward_error, steps) = self.refine(&rhs, &mut z, stack);
+        for (i, v) in rhs.iter().enumerate() {
+            col[(i, 0)] = *v;
+        }
+        self.backend.solve_in_place(col.as_mut(), stack);
+        for (i, zi) in z.iter_mut().enumerate() {
+            *zi = col[(i, 0)];
+        }
+        let (backward_error, steps) = self.refine(rhs, z, r, best, col, stack);
         if !(backward_error <= self.plan.options.accept_backward_error) {
             return Err(Error::Inaccurate {
                 backward_error,
@@ -284,39 +334,39 @@ impl Factorization {
                 limit: self.plan.options.accept_backward_error,
             });
         }
-        let n = self.problem.n();
-        let y = z.split_off(n);
-        let x = z;
-        let mut probe = self.problem.clone();
-        probe.c.copy_from_slice(c);
-        probe.b.copy_from_slice(b);
-        let (primal_residual, dual_residual) = probe.residuals(&x, &y);
-        let objective = probe.objective(&x);
-        let mut notes = Vec::new();
+        out.x.resize(n, 0.0);
+        out.y.resize(m, 0.0);
+        out.x.copy_from_slice(&z[..n]);
+        out.y.copy_from_slice(&z[n..]);
+        // Residuals of the returned point, with the caller's c and b: r = rhs − K z holds
+        // [−c − Hx − Aᵀy; b − Ax] already.
+        kkt::residual(&self.problem, z, rhs, r);
+        out.dual_residual = inf_norm(&r[..n]);
+        out.primal_residual = inf_norm(&r[n..]);
+        // objective = ½xᵀHx + cᵀx = ½xᵀ(Hx + c) + ½cᵀx, with Hx + c = −Aᵀy − r_x.
+        let x = &out.x;
+        let r_x = &mut best[..n];
+        r_x.iter_mut().zip(c).for_each(|(v, ci)| *v = *ci);
+        self.problem.h.mul_add(x, r_x);
+        out.objective = 0.5 * crate::problem::dot(x, r_x) + 0.5 * crate::problem::dot(c, x);
+        out.backward_error = backward_error;
+        out.refinement_steps = steps;
+        out.inertia = self.backend.inertia();
+        out.verdict = verdict;
+        out.method = self.backend.method();
+        out.timing = Timing {
+            analyze_s: self.plan.analyze_s,
+            factor_s: self.factor_s,
+            solve_s: t.elapsed().as_secs_f64(),
+        };
+        out.notes.clear();
         if backward_error > 1e3 * f64::EPSILON {
-            notes.push(format!(
+            out.notes.push(format!(
                 "backward error {backward_error:.1e} stayed above the refinement target after {steps} step(s): \
                  K is ill-conditioned, trust fewer digits"
             ));
         }
-        Ok(Solution {
-            x,
-            y,
-            objective,
-            primal_residual,
-            dual_residual,
-            backward_error,
-            refinement_steps: steps,
-            inertia: self.backend.inertia(),
-            verdict,
-            method: self.backend.method(),
-            timing: Timing {
-                analyze_s: self.plan.analyze_s,
-                factor_s: self.factor_s,
-                solve_s: t.elapsed().as_secs_f64(),
-            },
-            notes,
-        })
+        Ok(())
     }
 
     /// Normwise backward error `‖rhs − Kz‖∞ / (‖K‖∞‖z‖∞ + ‖rhs‖∞)` on the original K.
@@ -329,14 +379,20 @@ impl Factorization {
     /// Iterative refinement on the original K: correct `z` until the backward error is at
     /// most the target, stops improving (by at least a factor 2), or the step limit is
     /// reached. Returns the final backward error and the corrections applied.
-    fn refine(&self, rhs: &[f64], z: &mut [f64], stack: &mut MemStack) -> (f64, usize) {
+    fn refine(
+        &self,
+        rhs: &[f64],
+        z: &mut [f64],
+        r: &mut [f64],
+        best: &mut [f64],
+        col: &mut Mat<f64>,
+        stack: &mut MemStack,
+    ) -> (f64, usize) {
         let opts = &self.plan.options;
         let dim = rhs.len();
-        let mut r = vec![0.0; dim];
-        let mut col = Mat::<f64>::zeros(dim, 1);
-        let mut best = z.to_vec();
-        kkt::residual(&self.problem, z, rhs, &mut r);
-        let mut omega = normwise(&r, self.norm_k, z, rhs);
+        best.copy_from_slice(z);
+        kkt::residual(&self.problem, z, rhs, r);
+        let mut omega = normwise(r, self.norm_k, z, rhs);
         let mut steps = 0;
         while steps < opts.max_refinement_steps && omega > opts.refinement_target && omega.is_finite() {
             for i in 0..dim {
@@ -346,12 +402,12 @@ impl Factorization {
             for i in 0..dim {
                 z[i] += col[(i, 0)];
             }
-            kkt::residual(&self.problem, z, rhs, &mut r);
-            let next = normwise(&r, self.norm_k, z, rhs);
+            kkt::residual(&self.problem, z, rhs, r);
+            let next = normwise(r, self.norm_k, z, rhs);
             steps += 1;
             if !(next < omega) {
                 // No progress: keep the better iterate.
-                z.copy_from_slice(&best);
+                z.copy_from_slice(best);
                 break;
             }
             best.copy_from_slice(z);
@@ -365,10 +421,69 @@ impl Factorization {
     }
 }
 
-fn normwise(r: &[f64], norm_k: f64, z: &[f64], rhs: &[f64]) -> f64 {
-    let inf = |v: &[f64]| v.iter().fold(0.0f64, |a, x| a.max(x.abs()));
-    let denom = norm_k * inf(z) + inf(rhs);
-    let num = inf(r);
+/// Reusable scratch memory for [`Factorization::solve_into`]: the backend's solve scratch
+/// (faer `MemBuffer`) plus a few vectors of length `n + m`.
+pub struct Workspace {
+    n: usize,
+    m: usize,
+    buf: MemBuffer,
+    buf_bytes: usize,
+    rhs: Vec<f64>,
+    z: Vec<f64>,
+    r: Vec<f64>,
+    best: Vec<f64>,
+    col: Mat<f64>,
+}
+
+impl std::fmt::Debug for Workspace {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Workspace")
+            .field("n", &self.n)
+            .field("m", &self.m)
+            .field("bytes", &self.memory_usage())
+            .finish()
+    }
+}
+
+impl Workspace {
+    fn new(n: usize, m: usize, req: faer::dyn_stack::StackReq) -> Self {
+        let dim = n + m;
+        Workspace {
+            n,
+            m,
+            buf: MemBuffer::new(req),
+            buf_bytes: req.size_bytes(),
+            rhs: vec![0.0; dim],
+            z: vec![0.0; dim],
+            r: vec![0.0; dim],
+            best: vec![0.0; dim],
+            col: Mat::zeros(dim, 1),
+        }
+    }
+
+    /// Bytes held by this workspace.
+    pub fn memory_usage(&self) -> usize {
+        self.buf_bytes + 5 * (self.n + self.m) * std::mem::size_of::<f64>()
+    }
+
+    fn check(&self, n: usize, m: usize) -> Result<()> {
+        if (self.n, self.m) != (n, m) {
+            return Err(Error::StructureChanged {
+                detail: format!("the workspace is for n = {}, m = {}, not n = {n}, m = {m}", self.n, self.m),
+            });
+        }
+        Ok(())
+    }
+}
+
+fn inf_norm(v: &[f64]) -> f64 {
+    v.iter().fold(0.0f64, |a, x| a.max(x.abs()))
+}
+
+/// Normwise backward error `‖r‖∞ / (‖K‖∞‖z‖∞ + ‖rhs‖∞)` (Rigal & Gaches 1967).
+pub fn normwise(r: &[f64], norm_k: f64, z: &[f64], rhs: &[f64]) -> f64 {
+    let denom = norm_k * inf_norm(z) + inf_norm(rhs);
+    let num = inf_norm(r);
     if num == 0.0 {
         0.0
     } else if denom == 0.0 || !num.is_finite() {
