@@ -327,7 +327,7 @@ impl Factorization {
             *zi = col[(i, 0)];
         }
         let (backward_error, steps) = self.refine(rhs, z, r, best, col, stack);
-        if !(backward_error <= self.plan.options.accept_backward_error) {
+        if backward_error.is_nan() || backward_error > self.plan.options.accept_backward_error {
             return Err(Error::Inaccurate {
                 backward_error,
                 steps,
@@ -405,7 +405,7 @@ impl Factorization {
             kkt::residual(&self.problem, z, rhs, r);
             let next = normwise(r, self.norm_k, z, rhs);
             steps += 1;
-            if !(next < omega) {
+            if next.is_nan() || next >= omega {
                 // No progress: keep the better iterate.
                 z.copy_from_slice(best);
                 break;

@@ -173,7 +173,8 @@ fn singular_problem_exits_3_with_json() {
 /// names the file, block and position.
 #[test]
 fn bad_input_exits_2_and_names_the_place() {
-    let cases: Vec<(&str, Vec<(&str, String)>, Vec<&str>)> = vec![
+    type Case<'a> = (&'a str, Vec<(&'a str, String)>, Vec<&'a str>);
+    let cases: Vec<Case> = vec![
         ("missing H", vec![], vec!["H.mtx"]),
         (
             "malformed H",

@@ -80,9 +80,9 @@ pub fn ruiz_dense(mut k: MatMut<'_, f64>, max_iter: usize) -> Vec<f64> {
     for _ in 0..max_iter {
         // Column maxima equal row maxima for a symmetric matrix; columns are contiguous.
         let mut converged = true;
-        for j in 0..dim {
+        for (j, sj) in s.iter_mut().enumerate() {
             let mx = k.rb().col(j).iter().fold(0.0f64, |a, v| a.max(v.abs()));
-            s[j] = if mx > 0.0 { 1.0 / mx.sqrt() } else { 1.0 };
+            *sj = if mx > 0.0 { 1.0 / mx.sqrt() } else { 1.0 };
             if mx > 0.0 && (mx - 1.0).abs() > 0.1 {
                 converged = false;
             }
