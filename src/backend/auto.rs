@@ -70,6 +70,27 @@ pub fn estimate(n: usize, m: usize) -> CostEstimate {
     }
 }
 
+/// The method the cost model picks for sizes `n`, `m`, given whether every `H_ii > 0`
+/// (the cheap necessary condition for `H ≻ 0` that admits the Schur path).
+///
+/// ```
+/// use tangency::{backend::auto::choose_by_shape, MethodUsed};
+/// assert_eq!(choose_by_shape(10, 20, true), MethodUsed::NullSpace); // m > n
+/// ```
+pub fn choose_by_shape(n: usize, m: usize, h_diagonal_positive: bool) -> MethodUsed {
+    if m > n {
+        return MethodUsed::NullSpace;
+    }
+    let e = estimate(n, m);
+    if h_diagonal_positive && e.schur <= e.dense.min(e.null_space) {
+        MethodUsed::Schur
+    } else if e.null_space < e.dense {
+        MethodUsed::NullSpace
+    } else {
+        MethodUsed::DenseLblt
+    }
+}
+
 fn h_diagonal_positive(problem: &Problem) -> bool {
     let n = problem.n();
     let mut diag = vec![0.0f64; n];
@@ -112,7 +133,7 @@ pub fn choose(problem: &Problem, options: &Options) -> (MethodUsed, String) {
         );
     }
     let e = estimate(n, m);
-    if h_diagonal_positive(problem) && e.schur <= e.dense.min(e.null_space) {
+    if choose_by_shape(n, m, h_diagonal_positive(problem)) == MethodUsed::Schur {
         return (
             MethodUsed::Schur,
             format!("H has a positive diagonal (may be positive definite) and the Schur complement is cheapest; {}", describe(&e)),
@@ -134,7 +155,7 @@ pub fn choose_without_schur(problem: &Problem) -> (MethodUsed, String) {
         return (MethodUsed::NullSpace, format!("m = {m} > n = {n}"));
     }
     let e = estimate(n, m);
-    if e.null_space < e.dense {
+    if choose_by_shape(n, m, false) == MethodUsed::NullSpace {
         (MethodUsed::NullSpace, describe(&e))
     } else {
         (MethodUsed::DenseLblt, describe(&e))
