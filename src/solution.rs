@@ -81,6 +81,10 @@ impl fmt::Display for Verdict {
 pub enum MethodUsed {
     /// Dense symmetric-indefinite LBLᵀ (Bunch–Kaufman family).
     DenseLblt,
+    /// Range-space method: Cholesky of `H`, then of the Schur complement `A H⁻¹ Aᵀ`.
+    Schur,
+    /// Null-space method: rank-revealing QR of `Aᵀ`, reduced Hessian `ZᵀHZ`.
+    NullSpace,
 }
 
 impl MethodUsed {
@@ -88,6 +92,8 @@ impl MethodUsed {
     pub fn as_str(self) -> &'static str {
         match self {
             MethodUsed::DenseLblt => "dense",
+            MethodUsed::Schur => "schur",
+            MethodUsed::NullSpace => "nullspace",
         }
     }
 }
@@ -115,6 +121,7 @@ impl Solution {
             method,
             timing: Timing::default(),
             notes: Vec::new(),
+            null_direction: None,
         }
     }
 }
@@ -161,4 +168,8 @@ pub struct Solution {
     pub timing: Timing,
     /// Remarks a user should read (fallbacks taken, accuracy concerns).
     pub notes: Vec<String>,
+    /// For [`Verdict::NonUnique`]: a unit direction `d` with `Ad = 0` and `ZᵀHd = 0`
+    /// (a null vector of the reduced Hessian `ZᵀHZ`, mapped back by `Z`), so `x + t·d` is a
+    /// minimizer for every `t`; the returned `x` is the minimizer of minimum 2-norm. `None` otherwise.
+    pub null_direction: Option<Vec<f64>>,
 }

@@ -9,8 +9,10 @@ use std::time::Instant;
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::Mat;
 
-use crate::backend::dense_lblt::{DenseLblt, DenseParams};
-use crate::backend::KktBackend;
+use crate::backend::dense_lblt::DenseParams;
+use crate::backend::null_space::{NullSpace, NullSpaceParams};
+use crate::backend::schur::SchurParams;
+use crate::backend::{auto, KktBackend};
 use crate::error::{Block, Error, Result};
 use crate::kkt;
 use crate::problem::{check_vector, Problem};
@@ -20,16 +22,21 @@ use crate::solution::{Inertia, MethodUsed, Solution, Timing, Verdict};
 #[derive(Copy, Clone, Debug, PartialEq, Eq, Default)]
 #[non_exhaustive]
 pub enum Method {
-    /// Let the analysis choose (today: dense LBLᵀ for every problem).
+    /// Let the analysis choose (the cost model of [`crate::backend::auto`]).
     #[default]
     Auto,
     /// Dense symmetric-indefinite LBLᵀ.
     Dense,
+    /// Schur complement (range space): Cholesky of `H` and of `A H⁻¹ Aᵀ`; falls back to
+    /// dense LBLᵀ or null-space when `H` is not positive definite.
+    Schur,
+    /// Null-space: rank-revealing QR of `Aᵀ`, reduced Hessian `ZᵀHZ`.
+    NullSpace,
 }
 
 impl Method {
     /// Every method name the command line accepts.
-    pub const NAMES: &'static [&'static str] = &["auto", "dense"];
+    pub const NAMES: &'static [&'static str] = &["auto", "dense", "schur", "nullspace"];
 }
 
 impl FromStr for Method {
@@ -38,6 +45,8 @@ impl FromStr for Method {
         match s {
             "auto" => Ok(Method::Auto),
             "dense" => Ok(Method::Dense),
+            "schur" => Ok(Method::Schur),
+            "nullspace" => Ok(Method::NullSpace),
             other => Err(Error::InvalidOption(format!(
                 "unknown method '{other}'; known methods: {}",
                 Method::NAMES.join(", ")
@@ -67,6 +76,10 @@ pub struct Options {
     pub method: Method,
     /// Settings of the dense backend.
     pub dense: DenseParams,
+    /// Settings of the Schur-complement backend.
+    pub schur: SchurParams,
+    /// Settings of the null-space backend (also used for the rank analysis of singular K).
+    pub null_space: NullSpaceParams,
     /// Maximum refinement corrections. Default: [`DEFAULT_MAX_REFINEMENT_STEPS`].
     pub max_refinement_steps: usize,
     /// Stop refining once the backward error is at most this. Default:
@@ -82,6 +95,8 @@ impl Default for Options {
         Options {
             method: Method::Auto,
             dense: DenseParams::default(),
+            schur: SchurParams::default(),
+            null_space: NullSpaceParams::default(),
             max_refinement_steps: DEFAULT_MAX_REFINEMENT_STEPS,
             refinement_target: DEFAULT_REFINEMENT_TARGET,
             accept_backward_error: DEFAULT_ACCEPT_BACKWARD_ERROR,
@@ -106,10 +121,9 @@ impl Plan {
         let t = Instant::now();
         let (method, reason) = match options.method {
             Method::Dense => (MethodUsed::DenseLblt, "requested".to_string()),
-            Method::Auto => (
-                MethodUsed::DenseLblt,
-                "dense LBLᵀ is the only factorization available for this structure".to_string(),
-            ),
+            Method::Schur => (MethodUsed::Schur, "requested".to_string()),
+            Method::NullSpace => (MethodUsed::NullSpace, "requested".to_string()),
+            Method::Auto => auto::choose(problem, options),
         };
         Ok(Plan {
             n: problem.n(),
@@ -135,10 +149,7 @@ impl Plan {
     pub fn factor(&self, problem: &Problem) -> Result<Factorization> {
         self.check_structure(problem)?;
         let t = Instant::now();
-        let mut backend: Box<dyn KktBackend> = match self.method {
-            MethodUsed::DenseLblt => Box::new(DenseLblt::new(problem, self.options.dense)),
-        };
-        backend.factor(problem)?;
+        let backend = self.factor_backend(problem)?;
         let factor_s = t.elapsed().as_secs_f64();
         Ok(Factorization {
             plan: self.clone(),
@@ -147,6 +158,33 @@ impl Plan {
             backend,
             factor_s,
         })
+    }
+
+    /// Creates and factors the planned backend; a singular K goes to the null-space rank
+    /// analysis (which names dependent rows and solves what can be solved).
+    fn factor_backend(&self, problem: &Problem) -> Result<Box<dyn KktBackend>> {
+        let mut backend: Box<dyn KktBackend> = match self.method {
+            MethodUsed::DenseLblt | MethodUsed::Schur | MethodUsed::NullSpace => {
+                auto::make_backend(self.method, problem, &self.options)
+            }
+        };
+        backend.factor(problem)?;
+        match backend.inertia() {
+            Some(i) if i.zero > 0 && backend.method() != MethodUsed::NullSpace => {
+                let mut notes: Vec<String> = backend.notes().to_vec();
+                notes.push(format!(
+                    "{} found K singular (inertia {i}); switched to the null-space method with rank analysis",
+                    backend.method()
+                ));
+                let mut ns = NullSpace::new(problem, self.options.null_space);
+                for note in notes {
+                    ns = ns.with_note(note);
+                }
+                ns.factor(problem)?;
+                Ok(Box::new(ns))
+            }
+            _ => Ok(backend),
+        }
     }
 
     fn check_structure(&self, problem: &Problem) -> Result<()> {
@@ -228,7 +266,15 @@ impl Factorization {
         self.plan.check_structure(problem)?;
         self.problem.update_values(problem)?;
         let t = Instant::now();
-        self.backend.factor(&self.problem)?;
+        if self.backend.method() == self.plan.method && self.backend.notes().is_empty() {
+            self.backend.factor(&self.problem)?;
+            if self.backend.inertia().is_some_and(|i| i.zero > 0) && self.backend.method() != MethodUsed::NullSpace {
+                self.backend = self.plan.factor_backend(&self.problem)?;
+            }
+        } else {
+            // The last factorization fell back or was rescued: start from the plan again.
+            self.backend = self.plan.factor_backend(&self.problem)?;
+        }
         self.norm_k = kkt::norm_inf(&self.problem);
         self.factor_s = t.elapsed().as_secs_f64();
         Ok(())
@@ -241,10 +287,13 @@ impl Factorization {
         };
         let (n, m) = (self.problem.n(), self.problem.m());
         if inertia.zero > 0 {
-            return Err(Error::Singular {
-                inertia,
-                detail: singular_detail(n, m, inertia),
-            });
+            return match self.backend.singular_findings(&self.problem, &self.problem.c, &self.problem.b) {
+                Some(findings) => findings.map(|f| f.verdict),
+                None => Err(Error::Singular {
+                    inertia,
+                    detail: singular_detail(n, m, inertia),
+                }),
+            };
         }
         if self.backend.regularized_pivots() > 0 {
             return Ok(None);
@@ -310,7 +359,18 @@ impl Factorization {
         check_vector(Block::C, c, n)?;
         check_vector(Block::B, b, m)?;
         ws.check(n, m)?;
-        let verdict = self.verdict()?;
+        let singular = self.backend.inertia().is_some_and(|i| i.zero > 0);
+        let (verdict, findings) = if singular {
+            match self.backend.singular_findings(&self.problem, c, b) {
+                Some(f) => {
+                    let f = f?;
+                    (f.verdict, Some(f))
+                }
+                None => (self.verdict()?, None),
+            }
+        } else {
+            (self.verdict()?, None)
+        };
         let t = Instant::now();
         let Workspace {
             buf, rhs, z, r, best, col, ..
@@ -360,6 +420,12 @@ impl Factorization {
             solve_s: t.elapsed().as_secs_f64(),
         };
         out.notes.clear();
+        out.notes.extend(self.backend.notes().iter().cloned());
+        out.null_direction = None;
+        if let Some(f) = findings {
+            out.notes.extend(f.notes);
+            out.null_direction = f.null_direction;
+        }
         if backward_error > 1e3 * f64::EPSILON {
             out.notes.push(format!(
                 "backward error {backward_error:.1e} stayed above the refinement target after {steps} step(s): \
