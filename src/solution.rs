@@ -81,6 +81,8 @@ impl fmt::Display for Verdict {
 pub enum MethodUsed {
     /// Dense symmetric-indefinite LBLᵀ (Bunch–Kaufman family).
     DenseLblt,
+    /// Sparse LDLᵀ with a fill-reducing ordering and regularized pivots.
+    SparseLdlt,
 }
 
 impl MethodUsed {
@@ -88,6 +90,7 @@ impl MethodUsed {
     pub fn as_str(self) -> &'static str {
         match self {
             MethodUsed::DenseLblt => "dense",
+            MethodUsed::SparseLdlt => "sparse",
         }
     }
 }

@@ -10,6 +10,7 @@ use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::Mat;
 
 use crate::backend::dense_lblt::{DenseLblt, DenseParams};
+use crate::backend::sparse_ldlt::{self, SparseAnalysis, SparseLdlt, SparseParams};
 use crate::backend::KktBackend;
 use crate::error::{Block, Error, Result};
 use crate::kkt;
@@ -25,11 +26,13 @@ pub enum Method {
     Auto,
     /// Dense symmetric-indefinite LBLᵀ.
     Dense,
+    /// Sparse LDLᵀ (fill-reducing ordering, regularized pivots, refinement).
+    Sparse,
 }
 
 impl Method {
     /// Every method name the command line accepts.
-    pub const NAMES: &'static [&'static str] = &["auto", "dense"];
+    pub const NAMES: &'static [&'static str] = &["auto", "dense", "sparse"];
 }
 
 impl FromStr for Method {
@@ -38,6 +41,7 @@ impl FromStr for Method {
         match s {
             "auto" => Ok(Method::Auto),
             "dense" => Ok(Method::Dense),
+            "sparse" => Ok(Method::Sparse),
             other => Err(Error::InvalidOption(format!(
                 "unknown method '{other}'; known methods: {}",
                 Method::NAMES.join(", ")
@@ -67,6 +71,8 @@ pub struct Options {
     pub method: Method,
     /// Settings of the dense backend.
     pub dense: DenseParams,
+    /// Settings of the sparse backend.
+    pub sparse: SparseParams,
     /// Maximum refinement corrections. Default: [`DEFAULT_MAX_REFINEMENT_STEPS`].
     pub max_refinement_steps: usize,
     /// Stop refining once the backward error is at most this. Default:
@@ -82,6 +88,7 @@ impl Default for Options {
         Options {
             method: Method::Auto,
             dense: DenseParams::default(),
+            sparse: SparseParams::default(),
             max_refinement_steps: DEFAULT_MAX_REFINEMENT_STEPS,
             refinement_target: DEFAULT_REFINEMENT_TARGET,
             accept_backward_error: DEFAULT_ACCEPT_BACKWARD_ERROR,
@@ -98,6 +105,7 @@ pub struct Plan {
     reason: String,
     options: Options,
     analyze_s: f64,
+    sparse: Option<std::sync::Arc<SparseAnalysis>>,
 }
 
 impl Plan {
@@ -106,10 +114,18 @@ impl Plan {
         let t = Instant::now();
         let (method, reason) = match options.method {
             Method::Dense => (MethodUsed::DenseLblt, "requested".to_string()),
+            Method::Sparse => (MethodUsed::SparseLdlt, "requested".to_string()),
+            Method::Auto if sparse_ldlt::prefer_sparse(problem) => {
+                (MethodUsed::SparseLdlt, "sparse blocks and a large or sparse KKT matrix".to_string())
+            }
             Method::Auto => (
                 MethodUsed::DenseLblt,
                 "dense LBLᵀ is the only factorization available for this structure".to_string(),
             ),
+        };
+        let sparse = match method {
+            MethodUsed::SparseLdlt => Some(std::sync::Arc::new(SparseAnalysis::new(problem, &options.sparse)?)),
+            _ => None,
         };
         Ok(Plan {
             n: problem.n(),
@@ -118,6 +134,7 @@ impl Plan {
             reason,
             options: *options,
             analyze_s: t.elapsed().as_secs_f64(),
+            sparse,
         })
     }
 
@@ -137,13 +154,22 @@ impl Plan {
         let t = Instant::now();
         let mut backend: Box<dyn KktBackend> = match self.method {
             MethodUsed::DenseLblt => Box::new(DenseLblt::new(problem, self.options.dense)),
+            MethodUsed::SparseLdlt => {
+                let analysis = match &self.sparse {
+                    Some(a) => std::sync::Arc::clone(a),
+                    None => std::sync::Arc::new(SparseAnalysis::new(problem, &self.options.sparse)?),
+                };
+                Box::new(SparseLdlt::new(analysis)?)
+            }
         };
         backend.factor(problem)?;
         let factor_s = t.elapsed().as_secs_f64();
+        let mut norm_rows = vec![0.0; kkt::dim(problem)];
         Ok(Factorization {
             plan: self.clone(),
             problem: problem.clone(),
-            norm_k: kkt::norm_inf(problem),
+            norm_k: kkt::norm_inf_with(problem, &mut norm_rows),
+            norm_rows,
             backend,
             factor_s,
         })
@@ -187,6 +213,7 @@ pub struct Factorization {
     plan: Plan,
     problem: Problem,
     norm_k: f64,
+    norm_rows: Vec<f64>,
     backend: Box<dyn KktBackend>,
     factor_s: f64,
 }
@@ -229,7 +256,7 @@ impl Factorization {
         self.problem.update_values(problem)?;
         let t = Instant::now();
         self.backend.factor(&self.problem)?;
-        self.norm_k = kkt::norm_inf(&self.problem);
+        self.norm_k = kkt::norm_inf_with(&self.problem, &mut self.norm_rows);
         self.factor_s = t.elapsed().as_secs_f64();
         Ok(())
     }
@@ -246,7 +273,10 @@ impl Factorization {
                 detail: singular_detail(n, m, inertia),
             });
         }
-        if self.backend.regularized_pivots() > 0 {
+        // Forced (regularized) pivots impose signs: the inertia is evidence only when the
+        // backend confirmed it another way (sparse_ldlt: exact Schur-complement correction).
+        // solve_into also withholds the verdict when refinement then stalls.
+        if !self.backend.inertia_certified() {
             return Ok(None);
         }
         Ok(Some(if inertia == Inertia::new(n, m, 0) {
@@ -352,7 +382,10 @@ impl Factorization {
         out.backward_error = backward_error;
         out.refinement_steps = steps;
         out.inertia = self.backend.inertia();
-        out.verdict = verdict;
+        // With forced pivots the verdict also needs a solve refined to machine level.
+        let regularized_but_inaccurate =
+            self.backend.regularized_pivots() > 0 && backward_error > 1e3 * f64::EPSILON;
+        out.verdict = if regularized_but_inaccurate { None } else { verdict };
         out.method = self.backend.method();
         out.timing = Timing {
             analyze_s: self.plan.analyze_s,
@@ -364,6 +397,12 @@ impl Factorization {
             out.notes.push(format!(
                 "backward error {backward_error:.1e} stayed above the refinement target after {steps} step(s): \
                  K is ill-conditioned, trust fewer digits"
+            ));
+        }
+        if regularized_but_inaccurate && verdict.is_some() {
+            out.notes.push(format!(
+                "verdict withheld: {} pivot(s) were regularized and refinement did not reach machine precision",
+                self.backend.regularized_pivots()
             ));
         }
         Ok(())
