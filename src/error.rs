@@ -175,6 +175,12 @@ pub enum Error {
         /// What the singularity most likely means for the problem.
         detail: String,
     },
+    /// The factorization needs more memory or larger indices than available.
+    #[error("not enough resources: {detail}")]
+    Resources {
+        /// What could not be allocated.
+        detail: String,
+    },
     /// The solve finished but its backward error stayed above the acceptance level even
     /// after refinement: the answer is not trustworthy (K is numerically singular).
     #[error(

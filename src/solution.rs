@@ -85,6 +85,8 @@ pub enum MethodUsed {
     Schur,
     /// Null-space method: rank-revealing QR of `Aᵀ`, reduced Hessian `ZᵀHZ`.
     NullSpace,
+    /// Sparse LDLᵀ with a fill-reducing ordering and regularized pivots.
+    SparseLdlt,
 }
 
 impl MethodUsed {
@@ -94,6 +96,7 @@ impl MethodUsed {
             MethodUsed::DenseLblt => "dense",
             MethodUsed::Schur => "schur",
             MethodUsed::NullSpace => "nullspace",
+            MethodUsed::SparseLdlt => "sparse",
         }
     }
 }

@@ -8,6 +8,7 @@ pub mod auto;
 pub mod dense_lblt;
 pub mod null_space;
 pub mod schur;
+pub mod sparse_ldlt;
 
 use faer::dyn_stack::{MemStack, StackReq};
 use faer::MatMut;
@@ -50,6 +51,12 @@ pub trait KktBackend: Send + Sync + std::fmt::Debug {
     /// methods). When nonzero, the inertia is not evidence on its own.
     fn regularized_pivots(&self) -> usize {
         0
+    }
+    /// True when [`inertia`](KktBackend::inertia) is the inertia of K itself: observed
+    /// without forced pivots, or confirmed another way despite them (see
+    /// `sparse_ldlt`). Default: no forced pivots.
+    fn inertia_certified(&self) -> bool {
+        self.regularized_pivots() == 0
     }
     /// Scratch needed by [`solve_in_place`](KktBackend::solve_in_place) for `nrhs`
     /// right-hand sides.

@@ -25,7 +25,7 @@ enum Command {
     Solve {
         /// The problem directory.
         dir: PathBuf,
-        /// Factorization method: auto or dense.
+        /// Factorization method: auto, dense or sparse.
         #[arg(long, default_value = "auto")]
         method: String,
         /// Write x.mtx and multipliers.mtx into this directory.
@@ -37,6 +37,22 @@ enum Command {
     },
     /// Build, solve and explain a scenario of our own (a pinned spring lattice).
     Demo,
+    /// Write a generated test problem as a problem directory.
+    ///
+    /// Families (invented scenarios for testing linear algebra, not design tools):
+    /// poisson-control: control of a 2D Poisson equation on a K×K grid, n = 2K², m = K²;
+    /// tied-lattice: a cross-braced spring lattice of K×K cells in two halves joined by tie
+    /// constraints, with supports and multipoint constraints, n = 2(K+1)(K+2), m = 5K+3.
+    Generate {
+        /// poisson-control or tied-lattice.
+        family: String,
+        /// The size parameter K.
+        #[arg(long)]
+        size: usize,
+        /// The directory to write (created if needed).
+        #[arg(long)]
+        out: PathBuf,
+    },
 }
 
 fn exit_code(err: &Error) -> u8 {
@@ -79,6 +95,23 @@ fn main() -> ExitCode {
             }
         },
         Command::Solve { dir, method, out, json } => solve(&dir, &method, out.as_deref(), json),
+        Command::Generate { family, size, out } => generate(&family, size, &out),
+    }
+}
+
+fn generate(family: &str, size: usize, out: &std::path::Path) -> ExitCode {
+    let written = family
+        .parse::<tangency::generate::Family>()
+        .and_then(|f| tangency::generate::write_family(f, size, out));
+    match written {
+        Ok(p) => {
+            println!("wrote {} (n = {}, m = {})", out.display(), p.n(), p.m());
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("tangency: {e}");
+            ExitCode::from(2)
+        }
     }
 }
 
