@@ -59,7 +59,7 @@ impl Verdict {
     pub fn explain(self) -> &'static str {
         match self {
             Verdict::Minimizer => {
-                "unique global minimizer: the constraints are independent and the objective curves upward along every feasible direction"
+                "unique global minimizer: the objective curves upward along every feasible direction"
             }
             Verdict::Saddle => {
                 "stationary point, NOT a minimizer: the objective curves downward along some feasible direction and is unbounded below on the feasible set"

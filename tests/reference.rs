@@ -49,31 +49,38 @@ fn random_problems_match_nalgebra_lu_and_eigenvalues() {
     }
 }
 
-/// Singular K: duplicated constraint rows and m > n are refused with `Singular`, and the
-/// zero count agrees with nalgebra's eigenvalues.
+/// Singular K from a duplicated constraint row: the zero count agrees with nalgebra's
+/// eigenvalues, the consistent copy is dropped (and named), an inconsistent one is
+/// infeasible; m > n with generic b is infeasible too.
 #[test]
-fn singular_kkt_is_an_error_with_the_inertia() {
+fn dependent_rows_are_dropped_or_refused() {
     let mut rng = Rng::new(11);
     let n = 6;
     let h = symmetric_with_eigs(&mut rng, &[1.0, 2.0, 3.0, 4.0, 5.0, 6.0]);
     let mut a = rng.vec(2 * n);
     a.extend_from_within(0..n); // row 2 = row 0
-    let p = dense_problem(n, 3, &h, &a, &rng.vec(n), &[1.0, 2.0, 1.0]);
+    let c = rng.vec(n);
+    let p = dense_problem(n, 3, &h, &a, &c, &[1.0, 2.0, 1.0]);
+    let s = solve(&p, &Options::default()).unwrap();
+    let (pos, neg, zero) = eig_inertia(&kkt_nalgebra(&p), 1e-12);
+    let inertia = s.inertia.unwrap();
+    assert_eq!((inertia.positive, inertia.negative, inertia.zero), (pos, neg, zero));
+    assert_eq!(zero, 1);
+    assert!(s.notes.iter().any(|t| t.contains("row 2 = 1.0·row 0")), "{:?}", s.notes);
+    // Same answer as the problem without the copy (nalgebra LU on the reduced K).
+    let reduced = dense_problem(n, 2, &h, &a[..2 * n], &c, &[1.0, 2.0]);
+    let k = kkt_nalgebra(&reduced);
+    let rhs = nalgebra::DVector::from_iterator(n + 2, c.iter().map(|v| -v).chain([1.0, 2.0]));
+    let z = k.lu().solve(&rhs).unwrap();
+    assert!(max_abs_diff(&s.x, &z.as_slice()[..n]) < 1e-12);
+    let p = dense_problem(n, 3, &h, &a, &c, &[1.0, 2.0, 1.5]);
     let err = solve(&p, &Options::default()).unwrap_err();
-    match &err {
-        Error::Singular { inertia, .. } => {
-            let (pos, neg, zero) = eig_inertia(&kkt_nalgebra(&p), 1e-12);
-            assert_eq!((inertia.positive, inertia.negative, inertia.zero), (pos, neg, zero));
-            assert_eq!(zero, 1);
-        }
-        other => panic!("expected Singular, got {other}"),
-    }
+    assert!(matches!(err, Error::Infeasible { .. }), "{err}");
     assert!(err.is_no_solution());
-    // More rows than columns.
+    // More rows than columns with a generic right-hand side.
     let p = dense_problem(2, 3, &[1.0, 0.0, 0.0, 1.0], &rng.vec(6), &[0.0, 0.0], &[1.0, 2.0, 3.0]);
     let err = solve(&p, &Options::default()).unwrap_err();
-    assert!(matches!(err, Error::Singular { .. }));
-    assert!(err.to_string().contains("more constraints (3) than variables (2)"), "{err}");
+    assert!(matches!(err, Error::Infeasible { .. }), "{err}");
 }
 
 /// Plan once, factor, solve for many right-hand sides, refactor with new values.

@@ -190,7 +190,9 @@ fn auto_picks_sparse_for_large_sparse_problems() {
         .unwrap();
     let o = Options::default();
     assert_eq!(Plan::analyze(&large, &o).unwrap().method(), MethodUsed::SparseLdlt);
-    assert_eq!(Plan::analyze(&dense_data, &o).unwrap().method(), MethodUsed::DenseLblt);
-    // 12 unknowns, K about 40% full: dense.
-    assert_eq!(Plan::analyze(&small, &o).unwrap().method(), MethodUsed::DenseLblt);
+    // Dense data or a small, fairly full K: one of the dense methods (the dense cost model
+    // in backend::auto picks among them).
+    assert_ne!(Plan::analyze(&dense_data, &o).unwrap().method(), MethodUsed::SparseLdlt);
+    // 12 unknowns, K about 40% full.
+    assert_ne!(Plan::analyze(&small, &o).unwrap().method(), MethodUsed::SparseLdlt);
 }
