@@ -83,6 +83,7 @@
 
 pub mod backend;
 pub mod demo;
+pub mod diagnostics;
 pub mod error;
 pub mod io;
 pub mod kkt;
