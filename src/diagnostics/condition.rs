@@ -227,25 +227,27 @@ pub fn estimate(f: &Factorization) -> ConditionEstimate {
     }
 }
 
-/// Normwise relative forward-error bound `‖Δz‖∞/‖z‖∞ ≤ 2κω/(1 − κω)` for a solution of
-/// `Kz = r` with normwise backward error `ω` (as in [`crate::solver::normwise`], perturbations
-/// of K and of the right-hand side measured by `‖K‖∞` and `‖r‖∞`) and `κ = κ∞(K) = κ₁(K)`
-/// (Higham 2002, Theorem 7.2). Returns `+∞` when `κω ≥ 1` (no bound: the perturbed
-/// matrix may be singular).
+/// Normwise relative forward-error bound estimate `‖Δz‖∞/‖z‖∞ ≲ 2κω/(1 − κω)` for a
+/// solution of `Kz = r` with normwise backward error `ω` (as in [`crate::solver::normwise`]:
+/// perturbations of K and of the right-hand side measured by `‖K‖∞` and `‖r‖∞`) and
+/// `κ = κ∞(K) = κ₁(K)` (Higham 2002, Theorem 7.2).
+///
+/// Two reasons make it an estimate rather than a guarantee: `κ` is itself an estimate (a
+/// lower bound, usually within a factor 3), and a backward error computed in floating
+/// point omits the rounding committed while forming the residual, which is of order `ε`.
+/// `ω` is therefore taken as at least `ε` (common practice). Returns `+∞` when `κω ≥ 1` (no
+/// bound: a matrix that close may be singular).
 ///
 /// ```
 /// use tangency::diagnostics::condition::forward_error_bound;
-/// assert!((forward_error_bound(1e6, 1e-16) - 2e-10).abs() < 1e-15);
+/// assert!((forward_error_bound(1e6, 1e-12) - 2e-6).abs() < 1e-11);
+/// assert!((forward_error_bound(1e6, 0.0) - 2e6 * f64::EPSILON).abs() < 1e-15); // floored at ε
 /// assert_eq!(forward_error_bound(1e17, 1e-16), f64::INFINITY);
 /// ```
 pub fn forward_error_bound(kappa: f64, backward_error: f64) -> f64 {
-    let t = kappa * backward_error;
+    let t = kappa * backward_error.max(f64::EPSILON);
     if !(t < 1.0) {
-        return if backward_error == 0.0 && kappa.is_finite() {
-            0.0
-        } else {
-            f64::INFINITY
-        };
+        return f64::INFINITY;
     }
     2.0 * t / (1.0 - t)
 }
