@@ -22,7 +22,11 @@ fn componentwise_backward_error_is_attained_and_minimal() {
         let p = well_conditioned(&mut rng, n, m);
         let s = solve(&p, &Options::default()).unwrap();
         // A visibly wrong answer: relative noise 1e-6.
-        let z: Vec<f64> = s.x.iter().chain(&s.y).map(|v| v * (1.0 + 1e-6 * rng.sym()) + 1e-9 * rng.sym()).collect();
+        let z: Vec<f64> =
+            s.x.iter()
+                .chain(&s.y)
+                .map(|v| v * (1.0 + 1e-6 * rng.sym()) + 1e-9 * rng.sym())
+                .collect();
         let (x, y) = z.split_at(n);
         let be = backward_errors(&p, x, y, p.linear(), p.rhs());
         let k = kkt(&p);
@@ -31,22 +35,40 @@ fn componentwise_backward_error_is_attained_and_minimal() {
         let res = &r - &k * &zv;
         let kabs = k.abs();
         let denom = &kabs * zv.abs() + r.abs();
-        let d1: Vec<f64> = (0..n + m).map(|i| if res[i] == 0.0 { 0.0 } else { res[i] / denom[i] }).collect();
+        let d1: Vec<f64> = (0..n + m)
+            .map(|i| if res[i] == 0.0 { 0.0 } else { res[i] / denom[i] })
+            .collect();
         let omega = d1.iter().fold(0.0f64, |a, v| a.max(v.abs()));
         // Both sides form a residual of size ~1e-6 relative to the terms: ~1e-10 relative
         // rounding in each.
-        assert!((omega - be.componentwise).abs() <= 1e-8 * omega, "case {case}: {omega} vs {}", be.componentwise);
+        assert!(
+            (omega - be.componentwise).abs() <= 1e-8 * omega,
+            "case {case}: {omega} vs {}",
+            be.componentwise
+        );
         let dk = DMatrix::from_fn(n + m, n + m, |i, j| d1[i] * kabs[(i, j)] * zv[j].signum());
         let dr = DVector::from_fn(n + m, |i, _| -d1[i] * r[i].abs());
         let left = (&k + &dk) * &zv;
         let right = &r + &dr;
         let scale = (&kabs * zv.abs() + r.abs()).amax();
-        assert!((left - right).amax() <= 1e-14 * scale, "case {case}: perturbed system not satisfied");
-        assert!(dk.iter().zip(kabs.iter()).all(|(d, a)| d.abs() <= omega * a * (1.0 + 1e-12)));
+        assert!(
+            (left - right).amax() <= 1e-14 * scale,
+            "case {case}: perturbed system not satisfied"
+        );
+        assert!(dk
+            .iter()
+            .zip(kabs.iter())
+            .all(|(d, a)| d.abs() <= omega * a * (1.0 + 1e-12)));
         // Normwise (Rigal & Gaches): ‖res‖∞ / (‖K‖∞‖z‖∞ + ‖r‖∞), ‖K‖∞ from nalgebra.
-        let knorm = (0..n + m).map(|i| k.row(i).iter().map(|v| v.abs()).sum::<f64>()).fold(0.0, f64::max);
+        let knorm = (0..n + m)
+            .map(|i| k.row(i).iter().map(|v| v.abs()).sum::<f64>())
+            .fold(0.0, f64::max);
         let nw = res.amax() / (knorm * zv.amax() + r.amax());
-        assert!((nw - be.normwise).abs() <= 1e-8 * nw, "case {case}: normwise {nw} vs {}", be.normwise);
+        assert!(
+            (nw - be.normwise).abs() <= 1e-8 * nw,
+            "case {case}: normwise {nw} vs {}",
+            be.normwise
+        );
         assert!(be.normwise <= be.componentwise * (1.0 + 1e-12));
     }
 }
@@ -62,7 +84,10 @@ fn solutions_have_tiny_backward_errors() {
         let p = well_conditioned(&mut rng, n, m);
         let s = solve(&p, &Options::default()).unwrap();
         let be = of_solution(&p, &s);
-        assert!((be.normwise - s.backward_error).abs() <= 1e-3 * s.backward_error.max(1e-300) || s.backward_error == be.normwise);
+        assert!(
+            (be.normwise - s.backward_error).abs() <= 1e-3 * s.backward_error.max(1e-300)
+                || s.backward_error == be.normwise
+        );
         assert!(be.normwise <= 1e-15);
         assert!(be.componentwise <= 1e-12, "{}", be.componentwise);
     }

@@ -56,8 +56,16 @@ fn estimate_within_factor_three_of_exact_kappa() {
         assert!(est.solves <= MAX_SOLVE_CALLS, "case {case}: {} solves", est.solves);
         let ratio = exact / est.kappa;
         // Lower bound up to the rounding of both computations (relative κε ≤ 1e-3 here).
-        assert!(ratio >= 1.0 - 1e-3, "case {case} (n={n}, m={m}): estimate {:.6e} > exact {exact:.6e}", est.kappa);
-        assert!(ratio <= 3.0, "case {case} (n={n}, m={m}): estimate {:.3e} vs exact {exact:.3e}", est.kappa);
+        assert!(
+            ratio >= 1.0 - 1e-3,
+            "case {case} (n={n}, m={m}): estimate {:.6e} > exact {exact:.6e}",
+            est.kappa
+        );
+        assert!(
+            ratio <= 3.0,
+            "case {case} (n={n}, m={m}): estimate {:.3e} vs exact {exact:.3e}",
+            est.kappa
+        );
         worst_ratio = worst_ratio.max(ratio);
         max_kappa = max_kappa.max(exact);
         if exact > 1e8 {
@@ -65,9 +73,14 @@ fn estimate_within_factor_three_of_exact_kappa() {
         }
         accepted += 1;
     }
-    eprintln!("{accepted} cases, worst exact/estimate {worst_ratio:.3}, largest κ₁ {max_kappa:.2e}, {above_1e8} above 1e8");
+    eprintln!(
+        "{accepted} cases, worst exact/estimate {worst_ratio:.3}, largest κ₁ {max_kappa:.2e}, {above_1e8} above 1e8"
+    );
     assert!(accepted >= 200, "only {accepted} usable cases");
-    assert!(max_kappa >= 1e11, "the ill-conditioned range was not reached: max κ₁ {max_kappa:.2e}");
+    assert!(
+        max_kappa >= 1e11,
+        "the ill-conditioned range was not reached: max κ₁ {max_kappa:.2e}"
+    );
     assert!(above_1e8 >= 30);
 }
 
@@ -175,7 +188,10 @@ fn forward_error_bound_covers_the_true_error() {
 
 #[test]
 fn forward_error_bound_formula() {
-    assert_eq!(forward_error_bound(10.0, 0.0), 20.0 * f64::EPSILON / (1.0 - 10.0 * f64::EPSILON));
+    assert_eq!(
+        forward_error_bound(10.0, 0.0),
+        20.0 * f64::EPSILON / (1.0 - 10.0 * f64::EPSILON)
+    );
     assert!((forward_error_bound(10.0, 0.01) - 2.0 * 0.1 / 0.9).abs() < 1e-15);
     assert_eq!(forward_error_bound(1e3, 1e-3), f64::INFINITY);
     assert_eq!(forward_error_bound(f64::INFINITY, 1e-16), f64::INFINITY);

@@ -14,7 +14,10 @@ use tangency::io::write_problem_dir;
 use tangency::{Options, Problem, ProblemBuilder, Triangle, Verdict};
 
 fn run(args: &[&str]) -> (i32, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_tangency")).args(args).output().unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_tangency"))
+        .args(args)
+        .output()
+        .unwrap();
     (out.status.code().unwrap_or(-1), String::from_utf8(out.stdout).unwrap())
 }
 
@@ -34,7 +37,9 @@ fn field<'a>(json: &'a str, key: &str) -> &'a str {
 }
 
 fn num(json: &str, key: &str) -> f64 {
-    field(json, key).parse().unwrap_or_else(|_| panic!("{key} not a number in {json}"))
+    field(json, key)
+        .parse()
+        .unwrap_or_else(|_| panic!("{key} not a number in {json}"))
 }
 
 fn dir_with(p: &Problem) -> tempfile::TempDir {
@@ -65,7 +70,14 @@ fn fixtures() -> Vec<Fixture> {
         // Hock & Schittkowski (1981), HS28.
         Fixture {
             name: "HS28",
-            problem: dense(3, &[2., 2., 0., 2., 4., 2., 0., 2., 2.], 1, &[1., 2., 3.], &[0., 0., 0.], &[1.]),
+            problem: dense(
+                3,
+                &[2., 2., 0., 2., 4., 2., 0., 2., 2.],
+                1,
+                &[1., 2., 3.],
+                &[0., 0., 0.],
+                &[1.],
+            ),
             inertia: (3, 1, 0),
         },
         // Hock & Schittkowski (1981), HS48 (H singular, reduced Hessian positive definite).
@@ -73,7 +85,10 @@ fn fixtures() -> Vec<Fixture> {
             name: "HS48",
             problem: dense(
                 5,
-                &[2., 0., 0., 0., 0., 0., 2., -2., 0., 0., 0., -2., 2., 0., 0., 0., 0., 0., 2., -2., 0., 0., 0., -2., 2.],
+                &[
+                    2., 0., 0., 0., 0., 0., 2., -2., 0., 0., 0., -2., 2., 0., 0., 0., 0., 0., 2., -2., 0., 0., 0., -2.,
+                    2.,
+                ],
                 2,
                 &[1., 1., 1., 1., 1., 0., 0., 1., -2., -2.],
                 &[-2., 0., 0., 0., 0.],
@@ -86,7 +101,10 @@ fn fixtures() -> Vec<Fixture> {
             name: "HS51",
             problem: dense(
                 5,
-                &[2., -2., 0., 0., 0., -2., 4., 2., 0., 0., 0., 2., 2., 0., 0., 0., 0., 0., 2., 0., 0., 0., 0., 0., 2.],
+                &[
+                    2., -2., 0., 0., 0., -2., 4., 2., 0., 0., 0., 2., 2., 0., 0., 0., 0., 0., 2., 0., 0., 0., 0., 0.,
+                    2.,
+                ],
                 3,
                 &[1., 3., 0., 0., 0., 0., 0., 1., 1., -2., 0., 1., 0., 0., -1.],
                 &[0., -4., -4., -2., -2.],
@@ -97,7 +115,14 @@ fn fixtures() -> Vec<Fixture> {
         // Nocedal & Wright (2006), Example 16.2.
         Fixture {
             name: "NW16.2",
-            problem: dense(3, &[6., 2., 1., 2., 5., 2., 1., 2., 4.], 2, &[1., 0., 1., 0., 1., 1.], &[-8., -3., -3.], &[3., 0.]),
+            problem: dense(
+                3,
+                &[6., 2., 1., 2., 5., 2., 1., 2., 4.],
+                2,
+                &[1., 0., 1., 0., 1., 1.],
+                &[-8., -3., -3.],
+                &[3., 0.],
+            ),
             inertia: (3, 2, 0),
         },
     ]
@@ -117,11 +142,20 @@ fn inspect_fixtures() {
         assert_eq!(num(&out, "constraint_rank") as usize, m, "{}: {out}", fx.name);
         assert_eq!(field(&out, "dependent_rows"), "[]");
         let (p, q, z) = fx.inertia;
-        assert_eq!(field(&out, "inertia"), format!("{{\"positive\":{p},\"negative\":{q},\"zero\":{z}}}"), "{}", fx.name);
+        assert_eq!(
+            field(&out, "inertia"),
+            format!("{{\"positive\":{p},\"negative\":{q},\"zero\":{z}}}"),
+            "{}",
+            fx.name
+        );
         assert_eq!(field(&out, "verdict"), "\"minimizer\"", "{}", fx.name);
         let exact = kappa1(&kkt(&fx.problem));
         let est = num(&out, "condition_estimate");
-        assert!(est <= exact * (1.0 + 1e-10) && est >= exact / 3.0, "{}: {est} vs exact {exact}", fx.name);
+        assert!(
+            est <= exact * (1.0 + 1e-10) && est >= exact / 3.0,
+            "{}: {est} vs exact {exact}",
+            fx.name
+        );
         // Human-readable layout names the same facts.
         let (code, text) = run(&["inspect", d.path().to_str().unwrap()]);
         assert_eq!(code, 0);
@@ -153,7 +187,10 @@ fn inspect_names_dependent_rows() {
     assert_eq!(field(&out, "verdict"), "null");
     assert!(field(&out, "diagnosis").contains("redundant"));
     let (_, text) = run(&["inspect", d.path().to_str().unwrap()]);
-    assert!(text.contains("dependent row(s) 1, 2") || text.contains("dependent row(s) 2, 3"), "{text}");
+    assert!(
+        text.contains("dependent row(s) 1, 2") || text.contains("dependent row(s) 2, 3"),
+        "{text}"
+    );
     // The same problem with b inconsistent on the repeated row: infeasible.
     let q = dense(
         4,
@@ -197,12 +234,24 @@ fn inspect_invalid_input() {
     assert_eq!(code, 2);
     assert_eq!(out.lines().count(), 1);
     assert_eq!(field(&out, "status"), "\"invalid_input\"");
-    for key in ["n", "m", "constraint_rank", "dependent_rows", "inertia", "condition_estimate", "verdict"] {
+    for key in [
+        "n",
+        "m",
+        "constraint_rank",
+        "dependent_rows",
+        "inertia",
+        "condition_estimate",
+        "verdict",
+    ] {
         assert_eq!(field(&out, key), "null", "{key}");
     }
     // An asymmetric H written as a general file is refused, naming the pair.
     let d = tempfile::tempdir().unwrap();
-    std::fs::write(d.path().join("H.mtx"), "%%MatrixMarket matrix array real general\n2 2\n1\n0.5\n0\n1\n").unwrap();
+    std::fs::write(
+        d.path().join("H.mtx"),
+        "%%MatrixMarket matrix array real general\n2 2\n1\n0.5\n0\n1\n",
+    )
+    .unwrap();
     let (code, out) = run(&["inspect", d.path().to_str().unwrap(), "--json"]);
     assert_eq!(code, 2);
     assert!(field(&out, "message").contains("not symmetric"), "{out}");
@@ -219,7 +268,10 @@ fn solve_reports_objective_sensitivity() {
     let sens = &out[out.find("\"sensitivity\":").unwrap()..];
     let parse = |key: &str| -> Vec<f64> {
         let raw = field(sens, key);
-        raw.trim_matches(['[', ']']).split(',').map(|v| v.parse().unwrap()).collect()
+        raw.trim_matches(['[', ']'])
+            .split(',')
+            .map(|v| v.parse().unwrap())
+            .collect()
     };
     let (wb, wc) = (parse("objective_wrt_b"), parse("objective_wrt_c"));
     assert!(max_abs_diff(&wb, &[3., -2.]) < 1e-12, "{wb:?}");
@@ -233,7 +285,10 @@ fn solve_reports_objective_sensitivity() {
     assert!(!out.contains("sensitivity"));
     assert!(out.contains("\"condition_estimate\":"));
     let (_, text) = run(&["solve", d.path().to_str().unwrap(), "--sensitivity"]);
-    assert!(text.contains("raising b_0 by 1 changes the optimal objective by +3.000000e0 (= −y_0)"), "{text}");
+    assert!(
+        text.contains("raising b_0 by 1 changes the optimal objective by +3.000000e0 (= −y_0)"),
+        "{text}"
+    );
 }
 
 /// Library rank analysis on random rank-deficient A (dense and sparse storage), checked with
@@ -277,7 +332,9 @@ fn rank_and_dependent_rows_agree_with_svd() {
         };
         assert_eq!(info.constraints.rank, svd_rank(&a), "case {case}");
         assert_eq!(info.constraints.dependent_rows.len(), m - info.constraints.rank);
-        let kept: Vec<usize> = (0..m).filter(|i| !info.constraints.dependent_rows.contains(i)).collect();
+        let kept: Vec<usize> = (0..m)
+            .filter(|i| !info.constraints.dependent_rows.contains(i))
+            .collect();
         let ak = DMatrix::from_fn(kept.len(), n, |i, j| a[(kept[i], j)]);
         assert_eq!(svd_rank(&ak), kept.len(), "case {case}: kept rows independent");
         if info.constraints.rank == m && m <= n {
@@ -288,7 +345,11 @@ fn rank_and_dependent_rows_agree_with_svd() {
             assert_eq!(info.verdict, None);
         }
         // Random b is inconsistent on dependent rows (generically).
-        assert_eq!(info.constraints.consistent, info.constraints.dependent_rows.is_empty(), "case {case}");
+        assert_eq!(
+            info.constraints.consistent,
+            info.constraints.dependent_rows.is_empty(),
+            "case {case}"
+        );
     }
     let _ = Path::new(".");
 }

@@ -105,12 +105,26 @@ fn jvp_matches_central_differences() {
             let t = jvp(&f, &s, &d).unwrap();
             let step = 1e-5;
             let (sp, sm) = (solve_moved(&p, &d, step, &opts), solve_moved(&p, &d, -step, &opts));
-            let fd = |a: &[f64], b: &[f64]| -> Vec<f64> { a.iter().zip(b).map(|(u, v)| (u - v) / (2.0 * step)).collect() };
+            let fd =
+                |a: &[f64], b: &[f64]| -> Vec<f64> { a.iter().zip(b).map(|(u, v)| (u - v) / (2.0 * step)).collect() };
             let (fdx, fdy) = (fd(&sp.x, &sm.x), fd(&sp.y, &sm.y));
             let fobj = (sp.objective - sm.objective) / (2.0 * step);
-            assert!(rel_close(&fdx, &t.dx, FD_TOL), "{name} case {case}: dx {:?} vs fd {:?}", t.dx, fdx);
-            assert!(rel_close(&fdy, &t.dy, FD_TOL), "{name} case {case}: dy {:?} vs fd {:?}", t.dy, fdy);
-            assert!((fobj - t.objective).abs() <= FD_TOL * t.objective.abs().max(1.0), "{name} case {case}: objective");
+            assert!(
+                rel_close(&fdx, &t.dx, FD_TOL),
+                "{name} case {case}: dx {:?} vs fd {:?}",
+                t.dx,
+                fdx
+            );
+            assert!(
+                rel_close(&fdy, &t.dy, FD_TOL),
+                "{name} case {case}: dy {:?} vs fd {:?}",
+                t.dy,
+                fdy
+            );
+            assert!(
+                (fobj - t.objective).abs() <= FD_TOL * t.objective.abs().max(1.0),
+                "{name} case {case}: objective"
+            );
             checked += 1;
         }
         if name == "dense" {
@@ -140,7 +154,11 @@ fn objective_derivatives_by_resolving() {
                 let fp = f.solve_with(p.linear(), &bp).unwrap().objective;
                 let fm = f.solve_with(p.linear(), &bm).unwrap().objective;
                 let fd = (fp - fm) / (2.0 * step);
-                assert!((fd - d.wrt_b[i]).abs() <= FD_TOL * d.wrt_b[i].abs().max(1.0), "{name} case {case} b{i}: fd {fd} vs −y {}", d.wrt_b[i]);
+                assert!(
+                    (fd - d.wrt_b[i]).abs() <= FD_TOL * d.wrt_b[i].abs().max(1.0),
+                    "{name} case {case} b{i}: fd {fd} vs −y {}",
+                    d.wrt_b[i]
+                );
                 assert_eq!(d.wrt_b[i], -s.y[i]);
             }
             for j in 0..n {
@@ -150,7 +168,10 @@ fn objective_derivatives_by_resolving() {
                 let fp = f.solve_with(&cp, p.rhs()).unwrap().objective;
                 let fm = f.solve_with(&cm, p.rhs()).unwrap().objective;
                 let fd = (fp - fm) / (2.0 * step);
-                assert!((fd - d.wrt_c[j]).abs() <= FD_TOL * d.wrt_c[j].abs().max(1.0), "{name} case {case} c{j}");
+                assert!(
+                    (fd - d.wrt_c[j]).abs() <= FD_TOL * d.wrt_c[j].abs().max(1.0),
+                    "{name} case {case} c{j}"
+                );
             }
         }
     }
@@ -167,7 +188,14 @@ fn jacobians_match_inverse_blocks_and_differences() {
             let m = rng.below(n + 1);
             let p = well_conditioned(&mut rng, n, m);
             let Some(f) = factor(&p, &opts) else { continue };
-            let j = jacobians(&f, JacobianRequest { wrt_b: true, wrt_c: true }).unwrap();
+            let j = jacobians(
+                &f,
+                JacobianRequest {
+                    wrt_b: true,
+                    wrt_c: true,
+                },
+            )
+            .unwrap();
             assert_eq!(j.solves, n + m);
             assert!(j.notes.is_empty());
             let inv = kkt(&p).try_inverse().unwrap();
@@ -181,7 +209,10 @@ fn jacobians_match_inverse_blocks_and_differences() {
             for r in 0..n + m {
                 for col in 0..m {
                     let got = if r < n { xb[(r, col)] } else { yb[(r - n, col)] };
-                    assert!((got - inv[(r, n + col)]).abs() <= tol, "{name} case {case}: ∂z{r}/∂b{col}");
+                    assert!(
+                        (got - inv[(r, n + col)]).abs() <= tol,
+                        "{name} case {case}: ∂z{r}/∂b{col}"
+                    );
                 }
                 for col in 0..n {
                     let got = if r < n { xc[(r, col)] } else { yc[(r - n, col)] };
@@ -193,7 +224,10 @@ fn jacobians_match_inverse_blocks_and_differences() {
                 let col = rng.below(m);
                 let mut e = vec![0.0; m];
                 e[col] = 1.0;
-                let d = Perturbation { b: Some(e), ..Default::default() };
+                let d = Perturbation {
+                    b: Some(e),
+                    ..Default::default()
+                };
                 let (sp, sm) = (solve_moved(&p, &d, 1e-4, &opts), solve_moved(&p, &d, -1e-4, &opts));
                 let fdx: Vec<f64> = sp.x.iter().zip(&sm.x).map(|(u, v)| (u - v) / 2e-4).collect();
                 let an: Vec<f64> = (0..n).map(|r| xb[(r, col)]).collect();
@@ -220,32 +254,65 @@ fn adjoint_matches_central_differences_entrywise() {
             let g = adjoint(&f, &s, &gx, &gy).unwrap();
             let loss = |sol: &Solution| dot(&gx, &sol.x) + dot(&gy, &sol.y);
             let step = 1e-5;
-            let fd = |d: &Perturbation| (loss(&solve_moved(&p, d, step, &opts)) - loss(&solve_moved(&p, d, -step, &opts))) / (2.0 * step);
+            let fd = |d: &Perturbation| {
+                (loss(&solve_moved(&p, d, step, &opts)) - loss(&solve_moved(&p, d, -step, &opts))) / (2.0 * step)
+            };
             let check = |what: String, fdv: f64, an: f64| {
-                assert!((fdv - an).abs() <= FD_TOL * an.abs().max(1.0), "{name} case {case} {what}: fd {fdv} vs adjoint {an}");
+                assert!(
+                    (fdv - an).abs() <= FD_TOL * an.abs().max(1.0),
+                    "{name} case {case} {what}: fd {fdv} vs adjoint {an}"
+                );
             };
             let (gh, ga) = (g.h.to_dense(), g.a.to_dense());
             for i in 0..n {
                 let mut e = vec![0.0; n];
                 e[i] = 1.0;
-                check(format!("c{i}"), fd(&Perturbation { c: Some(e), ..Default::default() }), g.c[i]);
+                check(
+                    format!("c{i}"),
+                    fd(&Perturbation {
+                        c: Some(e),
+                        ..Default::default()
+                    }),
+                    g.c[i],
+                );
                 for j in 0..=i {
                     let mut dh = Mat::zeros(n, n);
                     dh[(i, j)] = 1.0;
                     dh[(j, i)] = 1.0;
                     let an = if i == j { gh[(i, i)] } else { gh[(i, j)] + gh[(j, i)] };
-                    check(format!("H{i}{j}"), fd(&Perturbation { h: Some(Matrix::Dense(dh)), ..Default::default() }), an);
+                    check(
+                        format!("H{i}{j}"),
+                        fd(&Perturbation {
+                            h: Some(Matrix::Dense(dh)),
+                            ..Default::default()
+                        }),
+                        an,
+                    );
                     assert_eq!(gh[(i, j)], gh[(j, i)], "∂ℓ/∂H is symmetrized");
                 }
             }
             for i in 0..m {
                 let mut e = vec![0.0; m];
                 e[i] = 1.0;
-                check(format!("b{i}"), fd(&Perturbation { b: Some(e), ..Default::default() }), g.b[i]);
+                check(
+                    format!("b{i}"),
+                    fd(&Perturbation {
+                        b: Some(e),
+                        ..Default::default()
+                    }),
+                    g.b[i],
+                );
                 for j in 0..n {
                     let mut da = Mat::zeros(m, n);
                     da[(i, j)] = 1.0;
-                    check(format!("A{i}{j}"), fd(&Perturbation { a: Some(Matrix::Dense(da)), ..Default::default() }), ga[(i, j)]);
+                    check(
+                        format!("A{i}{j}"),
+                        fd(&Perturbation {
+                            a: Some(Matrix::Dense(da)),
+                            ..Default::default()
+                        }),
+                        ga[(i, j)],
+                    );
                 }
             }
         }
@@ -335,14 +402,29 @@ fn sparse_gradients_live_on_the_pattern() {
             // One random direction on the patterns: ⟨∇, δ⟩ vs central difference.
             let dh_t: Vec<(usize, usize, f64)> = ht.iter().map(|&(i, j, _)| (i, j, rng.sym())).collect();
             let da_t: Vec<(usize, usize, f64)> = at.iter().map(|&(i, j, _)| (i, j, rng.sym())).collect();
-            let dh = ProblemBuilder::new().hessian_triplets(n, &dh_t, Triangle::Lower).build().unwrap();
-            let da = ProblemBuilder::new().hessian_row_major(n, &vec![0.0; n * n], Triangle::Full).constraints_triplets(m, n, &da_t).build().unwrap();
-            let d = Perturbation { h: Some(dh.hessian().clone()), a: Some(da.constraints().clone()), ..Default::default() };
+            let dh = ProblemBuilder::new()
+                .hessian_triplets(n, &dh_t, Triangle::Lower)
+                .build()
+                .unwrap();
+            let da = ProblemBuilder::new()
+                .hessian_row_major(n, &vec![0.0; n * n], Triangle::Full)
+                .constraints_triplets(m, n, &da_t)
+                .build()
+                .unwrap();
+            let d = Perturbation {
+                h: Some(dh.hessian().clone()),
+                a: Some(da.constraints().clone()),
+                ..Default::default()
+            };
             let step = 1e-5;
             let loss = |sol: &Solution| dot(&gx, &sol.x) + dot(&gy, &sol.y);
-            let fdv = (loss(&solve_moved(&p, &d, step, &opts)) - loss(&solve_moved(&p, &d, -step, &opts))) / (2.0 * step);
+            let fdv =
+                (loss(&solve_moved(&p, &d, step, &opts)) - loss(&solve_moved(&p, &d, -step, &opts))) / (2.0 * step);
             let an = frob(&g.h, d.h.as_ref().unwrap()) + frob(&g.a, d.a.as_ref().unwrap());
-            assert!((fdv - an).abs() <= FD_TOL * an.abs().max(1.0), "{name} case {case}: fd {fdv} vs {an}");
+            assert!(
+                (fdv - an).abs() <= FD_TOL * an.abs().max(1.0),
+                "{name} case {case}: fd {fdv} vs {an}"
+            );
             let t = jvp(&f, &s, &d).unwrap();
             assert!((dot(&gx, &t.dx) + dot(&gy, &t.dy) - an).abs() <= 1e-12 * an.abs().max(1.0));
         }
@@ -365,12 +447,48 @@ fn errors_are_typed() {
         assert!(e.is_invalid_input());
         e.to_string()
     };
-    assert!(msg(jvp(&f, &s, &Perturbation { c: Some(vec![1.0]), ..Default::default() }).unwrap_err()).contains("δc has length 1, expected 2"));
-    assert!(msg(jvp(&f, &s, &Perturbation { b: Some(vec![f64::NAN]), ..Default::default() }).unwrap_err()).contains("δb"));
+    assert!(msg(jvp(
+        &f,
+        &s,
+        &Perturbation {
+            c: Some(vec![1.0]),
+            ..Default::default()
+        }
+    )
+    .unwrap_err())
+    .contains("δc has length 1, expected 2"));
+    assert!(msg(jvp(
+        &f,
+        &s,
+        &Perturbation {
+            b: Some(vec![f64::NAN]),
+            ..Default::default()
+        }
+    )
+    .unwrap_err())
+    .contains("δb"));
     let asym = Matrix::Dense(faer::mat![[0.0, 1.0], [0.0, 0.0]]);
-    assert!(msg(jvp(&f, &s, &Perturbation { h: Some(asym), ..Default::default() }).unwrap_err()).contains("δH must be symmetric"));
+    assert!(msg(jvp(
+        &f,
+        &s,
+        &Perturbation {
+            h: Some(asym),
+            ..Default::default()
+        }
+    )
+    .unwrap_err())
+    .contains("δH must be symmetric"));
     let wrong = Matrix::Dense(Mat::zeros(2, 2));
-    assert!(msg(jvp(&f, &s, &Perturbation { a: Some(wrong), ..Default::default() }).unwrap_err()).contains("δA is 2×2, expected 1×2"));
+    assert!(msg(jvp(
+        &f,
+        &s,
+        &Perturbation {
+            a: Some(wrong),
+            ..Default::default()
+        }
+    )
+    .unwrap_err())
+    .contains("δA is 2×2, expected 1×2"));
     assert!(msg(adjoint(&f, &s, &[1.0], &[0.0]).unwrap_err()).contains("ḡx"));
     // Singular K: a repeated constraint.
     let q = ProblemBuilder::new()
@@ -380,13 +498,28 @@ fn errors_are_typed() {
         .unwrap();
     let fq = Plan::analyze(&q, &Options::default()).unwrap().factor(&q).unwrap();
     let fake = Solution::empty(2, 2, tangency::MethodUsed::DenseLblt);
-    assert!(matches!(adjoint(&fq, &fake, &[1.0, 0.0], &[0.0, 0.0]), Err(Error::Singular { .. })));
-    assert!(matches!(jacobians(&fq, JacobianRequest { wrt_b: true, wrt_c: false }), Err(Error::Singular { .. })));
+    assert!(matches!(
+        adjoint(&fq, &fake, &[1.0, 0.0], &[0.0, 0.0]),
+        Err(Error::Singular { .. })
+    ));
+    assert!(matches!(
+        jacobians(
+            &fq,
+            JacobianRequest {
+                wrt_b: true,
+                wrt_c: false
+            }
+        ),
+        Err(Error::Singular { .. })
+    ));
 }
 
 #[test]
 fn jacobian_size_accounting() {
-    let r = JacobianRequest { wrt_b: true, wrt_c: true };
+    let r = JacobianRequest {
+        wrt_b: true,
+        wrt_c: true,
+    };
     assert_eq!(jacobian_bytes(3, 2, r), 8 * (5 * 2 + 5 * 3));
     assert_eq!(jacobian_bytes(3, 2, JacobianRequest::default()), 0);
     assert_eq!(jacobian_bytes(usize::MAX, 2, r), usize::MAX);

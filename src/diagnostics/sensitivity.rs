@@ -247,10 +247,10 @@ pub struct Jacobians {
 pub fn jacobian_bytes(n: usize, m: usize, request: JacobianRequest) -> usize {
     let mut entries = 0usize;
     if request.wrt_b {
-        entries = entries.saturating_add((n + m).saturating_mul(m));
+        entries = entries.saturating_add(n.saturating_add(m).saturating_mul(m));
     }
     if request.wrt_c {
-        entries = entries.saturating_add((n + m).saturating_mul(n));
+        entries = entries.saturating_add(n.saturating_add(m).saturating_mul(n));
     }
     entries.saturating_mul(std::mem::size_of::<f64>())
 }

@@ -124,7 +124,13 @@ pub fn methods() -> Vec<(String, Options)> {
         .filter(|name| **name != "auto")
         .map(|name| {
             let method: Method = name.parse().expect("listed method parses");
-            (name.to_string(), Options { method, ..Default::default() })
+            (
+                name.to_string(),
+                Options {
+                    method,
+                    ..Default::default()
+                },
+            )
         })
         .collect()
 }
