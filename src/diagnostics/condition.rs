@@ -192,14 +192,14 @@ impl ConditionEstimate {
 /// ```
 /// use tangency::{Options, Plan, ProblemBuilder, Triangle};
 /// use tangency::diagnostics::condition::estimate;
-/// // K = [2 0 1; 0 2 1; 1 1 0]: ‖K‖₁ = 3, ‖K⁻¹‖₁ = 1.5, so κ₁ = 4.5.
+/// // K = [2 0 1; 0 2 1; 1 1 0]: ‖K‖₁ = 3, K⁻¹ = [¼ −¼ ½; −¼ ¼ ½; ½ ½ −1], ‖K⁻¹‖₁ = 2: κ₁ = 6.
 /// let p = ProblemBuilder::new()
 ///     .hessian_row_major(2, &[2.0, 0.0, 0.0, 2.0], Triangle::Full)
 ///     .constraints_row_major(1, 2, &[1.0, 1.0])
 ///     .build()?;
 /// let f = Plan::analyze(&p, &Options::default())?.factor(&p)?;
 /// let k = estimate(&f);
-/// assert!((k.kappa - 4.5).abs() < 1e-12);
+/// assert!((k.kappa - 6.0).abs() < 1e-12);
 /// assert!(k.solves <= tangency::diagnostics::condition::MAX_SOLVE_CALLS);
 /// # Ok::<(), tangency::Error>(())
 /// ```
