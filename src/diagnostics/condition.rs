@@ -246,7 +246,7 @@ pub fn estimate(f: &Factorization) -> ConditionEstimate {
 /// ```
 pub fn forward_error_bound(kappa: f64, backward_error: f64) -> f64 {
     let t = kappa * backward_error.max(f64::EPSILON);
-    if !(t < 1.0) {
+    if t.is_nan() || t >= 1.0 {
         return f64::INFINITY;
     }
     2.0 * t / (1.0 - t)

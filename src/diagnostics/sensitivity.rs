@@ -440,9 +440,9 @@ pub(crate) fn solve_refined(f: &Factorization, rhs: MatRef<'_, f64>) -> Result<(
     backend.solve_in_place(z.as_mut(), MemStack::new(&mut buf));
     let mut res = Mat::<f64>::zeros(dim, k);
     let mut omega = vec![0.0; k];
-    for j in 0..k {
+    for (j, w) in omega.iter_mut().enumerate() {
         kkt::residual(problem, z.col_as_slice(j), r0.col_as_slice(j), res.col_as_slice_mut(j));
-        omega[j] = normwise(res.col_as_slice(j), norm_k, z.col_as_slice(j), r0.col_as_slice(j));
+        *w = normwise(res.col_as_slice(j), norm_k, z.col_as_slice(j), r0.col_as_slice(j));
     }
     let mut active: Vec<usize> = (0..k)
         .filter(|&j| omega[j] > opts.refinement_target && omega[j].is_finite())
@@ -479,7 +479,10 @@ pub(crate) fn solve_refined(f: &Factorization, rhs: MatRef<'_, f64>) -> Result<(
     let worst = omega
         .iter()
         .fold(0.0f64, |a, &w| if w.is_nan() { f64::INFINITY } else { a.max(w) });
-    if !(worst <= opts.accept_backward_error) {
+    // NaN-safe: anything not provably within the acceptance level is refused.
+    if worst.partial_cmp(&opts.accept_backward_error) != Some(std::cmp::Ordering::Less)
+        && worst != opts.accept_backward_error
+    {
         return Err(Error::Inaccurate {
             backward_error: worst,
             steps,
