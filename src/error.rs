@@ -221,6 +221,14 @@ pub enum Error {
         /// Explanation in words.
         detail: String,
     },
+    /// A direction, seed or request given to a sensitivity routine
+    /// ([`crate::diagnostics::sensitivity`]) is malformed (wrong length or shape, NaN/Inf, a
+    /// non-symmetric `δH`). Recover by correcting the argument named in the message.
+    #[error("invalid sensitivity input: {detail}")]
+    InvalidSensitivityInput {
+        /// What is wrong, naming the argument, row and column.
+        detail: String,
+    },
 }
 
 impl Error {

@@ -166,6 +166,12 @@ impl Plan {
         &self.reason
     }
 
+    /// The options this plan was made with (refinement settings are reused by
+    /// [`crate::diagnostics`]).
+    pub fn options(&self) -> &Options {
+        &self.options
+    }
+
     /// Numeric factorization of `problem` (which must have the analyzed structure).
     pub fn factor(&self, problem: &Problem) -> Result<Factorization> {
         self.check_structure(problem)?;

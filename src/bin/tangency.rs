@@ -8,8 +8,8 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
-use tangency::report::{error_json, human, solution_json};
-use tangency::{io, Error, Method, Options, Plan};
+use tangency::report::{error_json, human, solution_json, Json};
+use tangency::{diagnostics, io, Error, Method, Options, Plan};
 
 #[derive(Parser, Debug)]
 #[command(name = "tangency", version, about = "Equality-constrained quadratic programs and their KKT systems")]
@@ -25,12 +25,24 @@ enum Command {
     Solve {
         /// The problem directory.
         dir: PathBuf,
-        /// Factorization method: auto, dense or sparse.
+        /// Factorization method: auto, dense, sparse, schur or nullspace.
         #[arg(long, default_value = "auto")]
         method: String,
         /// Write x.mtx and multipliers.mtx into this directory.
         #[arg(long)]
         out: Option<PathBuf>,
+        /// Print exactly one JSON object on stdout (whatever the outcome).
+        #[arg(long)]
+        json: bool,
+        /// Also report how the optimal objective moves with b and c (df/db = −y, df/dc = x).
+        #[arg(long)]
+        sensitivity: bool,
+    },
+    /// Analyze a problem directory without solving for x: sizes, symmetry, constraint rank
+    /// and dependent rows, inertia, condition estimate, predicted verdict.
+    Inspect {
+        /// The problem directory.
+        dir: PathBuf,
         /// Print exactly one JSON object on stdout (whatever the outcome).
         #[arg(long)]
         json: bool,
@@ -94,7 +106,14 @@ fn main() -> ExitCode {
                 ExitCode::from(exit_code(&e))
             }
         },
-        Command::Solve { dir, method, out, json } => solve(&dir, &method, out.as_deref(), json),
+        Command::Solve {
+            dir,
+            method,
+            out,
+            json,
+            sensitivity,
+        } => solve(&dir, &method, out.as_deref(), json, sensitivity),
+        Command::Inspect { dir, json } => inspect(&dir, json),
         Command::Generate { family, size, out } => generate(&family, size, &out),
     }
 }
@@ -115,10 +134,37 @@ fn generate(family: &str, size: usize, out: &std::path::Path) -> ExitCode {
     }
 }
 
-fn solve(dir: &std::path::Path, method: &str, out: Option<&std::path::Path>, json: bool) -> ExitCode {
-    let fail = |err: Error, sizes: Option<(usize, usize)>, used: Option<&str>, inertia| {
+fn inspect(dir: &std::path::Path, json: bool) -> ExitCode {
+    match diagnostics::inspect::inspect_dir(dir, &Options::default()) {
+        Ok(info) => {
+            if json {
+                println!("{}", info.to_json());
+            } else {
+                print!("{info}");
+            }
+            ExitCode::SUCCESS
+        }
+        Err(err) => {
+            if json {
+                let mut o = error_json(&err, None, None, None);
+                for key in ["constraint_rank", "dependent_rows", "condition_estimate"] {
+                    o.set(key, Json::Null);
+                }
+                println!("{o}");
+            } else {
+                eprintln!("tangency: invalid input: {err}");
+            }
+            ExitCode::from(exit_code(&err))
+        }
+    }
+}
+
+fn solve(dir: &std::path::Path, method: &str, out: Option<&std::path::Path>, json: bool, sensitivity: bool) -> ExitCode {
+    let fail = |err: Error, sizes: Option<(usize, usize)>, used: Option<&str>, inertia, kappa: Option<f64>| {
         if json {
-            println!("{}", error_json(&err, sizes, used, inertia));
+            let mut o = error_json(&err, sizes, used, inertia);
+            o.set("condition_estimate", kappa.filter(|k| k.is_finite()));
+            println!("{o}");
         } else {
             eprintln!("tangency: {}: {err}", if err.is_no_solution() { "no solution" } else { "invalid input" });
         }
@@ -126,11 +172,11 @@ fn solve(dir: &std::path::Path, method: &str, out: Option<&std::path::Path>, jso
     };
     let method: Method = match method.parse() {
         Ok(m) => m,
-        Err(e) => return fail(e, None, None, None),
+        Err(e) => return fail(e, None, None, None, None),
     };
     let problem = match io::read_problem_dir(dir) {
         Ok(p) => p,
-        Err(e) => return fail(e, None, None, None),
+        Err(e) => return fail(e, None, None, None, None),
     };
     let sizes = Some((problem.n(), problem.m()));
     let options = Options {
@@ -139,16 +185,19 @@ fn solve(dir: &std::path::Path, method: &str, out: Option<&std::path::Path>, jso
     };
     let plan = match Plan::analyze(&problem, &options) {
         Ok(p) => p,
-        Err(e) => return fail(e, sizes, None, None),
+        Err(e) => return fail(e, sizes, None, None, None),
     };
     let used = plan.method().as_str();
     let factorization = match plan.factor(&problem) {
         Ok(f) => f,
-        Err(e) => return fail(e, sizes, Some(used), None),
+        Err(e) => return fail(e, sizes, Some(used), None, None),
     };
+    // A few solves with the factors (at most diagnostics::condition::MAX_SOLVE_CALLS).
+    let condition = diagnostics::condition::estimate(&factorization);
+    let kappa = Some(condition.kappa);
     let solution = match factorization.solve() {
         Ok(s) => s,
-        Err(e) => return fail(e, sizes, Some(used), factorization.inertia()),
+        Err(e) => return fail(e, sizes, Some(used), factorization.inertia(), kappa),
     };
     if let Some(out) = out {
         let written = std::fs::create_dir_all(out)
@@ -159,13 +208,32 @@ fn solve(dir: &std::path::Path, method: &str, out: Option<&std::path::Path>, jso
             .and_then(|_| io::write_vector(out.join("x.mtx"), &solution.x))
             .and_then(|_| io::write_vector(out.join("multipliers.mtx"), &solution.y));
         if let Err(e) = written {
-            return fail(e, sizes, Some(used), solution.inertia);
+            return fail(e, sizes, Some(used), solution.inertia, kappa);
         }
     }
+    let bound = condition.forward_error_bound(solution.backward_error);
+    let finite = |v: f64| v.is_finite().then_some(v);
     if json {
-        println!("{}", solution_json(&problem, &solution));
+        let mut o = solution_json(&problem, &solution);
+        o.set("condition_estimate", finite(condition.kappa));
+        o.set("forward_error_bound", finite(bound));
+        if sensitivity {
+            let d = diagnostics::sensitivity::objective_sensitivity(&solution);
+            let mut sens = Json::object();
+            sens.set("objective_wrt_b", &d.wrt_b[..]).set("objective_wrt_c", &d.wrt_c[..]);
+            o.set("sensitivity", sens);
+        }
+        println!("{o}");
     } else {
         print!("{}", human(&problem, &solution));
+        println!(
+            "  condition   κ₁(K) ≈ {:.2e} ({} solve(s)); relative forward error ≤ {:.1e}",
+            condition.kappa, condition.solves, bound
+        );
+        if sensitivity {
+            println!("  sensitivity of the optimal objective (first order):");
+            print!("{}", diagnostics::sensitivity::objective_sensitivity(&solution).describe(20));
+        }
         if let Some(out) = out {
             println!("  written     {} and {}", out.join("x.mtx").display(), out.join("multipliers.mtx").display());
         }
