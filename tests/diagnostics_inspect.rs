@@ -184,7 +184,9 @@ fn inspect_names_dependent_rows() {
     assert!(rows == "[1,2]" || rows == "[2,3]", "dependent rows {rows}");
     assert_eq!(field(&out, "constraints_consistent"), "true");
     assert_eq!(field(&out, "inertia"), "{\"positive\":4,\"negative\":2,\"zero\":2}");
-    assert_eq!(field(&out, "verdict"), "null");
+    // The redundant rows are dropped by the rank analysis: H ≻ 0, so the reduced problem
+    // has a unique minimizer.
+    assert_eq!(field(&out, "verdict"), "\"minimizer\"");
     assert!(field(&out, "diagnosis").contains("redundant"));
     let (_, text) = run(&["inspect", d.path().to_str().unwrap()]);
     assert!(
@@ -204,16 +206,17 @@ fn inspect_names_dependent_rows() {
     let (_, out) = run(&["inspect", d.path().to_str().unwrap(), "--json"]);
     assert_eq!(field(&out, "constraints_consistent"), "false");
     assert!(field(&out, "diagnosis").contains("infeasible"));
-    // solve refuses the singular K and still reports the condition estimate key.
+    // solve refuses the contradictory constraints and still reports the condition key.
     let (code, out) = run(&["solve", d.path().to_str().unwrap(), "--json"]);
     assert_eq!(code, 3, "{out}");
-    assert_eq!(field(&out, "status"), "\"singular\"");
+    assert_eq!(field(&out, "status"), "\"infeasible\"");
     let k = field(&out, "condition_estimate");
     assert!(k == "null" || k.parse::<f64>().unwrap() > 1e15, "{k}");
 }
 
 /// A singular reduced Hessian with independent constraints (H = 0 on a 2-D feasible line):
-/// rank full, a zero eigenvalue, no verdict, the diagnosis says so.
+/// rank full, a zero eigenvalue, verdict non-unique (c = 0 is orthogonal to the flat
+/// direction), the diagnosis says why.
 #[test]
 fn inspect_flat_objective() {
     let p = dense(2, &[0., 0., 0., 0.], 1, &[1., 1.], &[1., 1.], &[1.]);
@@ -223,7 +226,7 @@ fn inspect_flat_objective() {
     assert_eq!(num(&out, "constraint_rank"), 1.0);
     assert_eq!(field(&out, "dependent_rows"), "[]");
     assert_eq!(field(&out, "zero"), "1");
-    assert_eq!(field(&out, "verdict"), "null");
+    assert_eq!(field(&out, "verdict"), "\"non_unique\"");
     assert!(field(&out, "diagnosis").contains("reduced Hessian is singular"));
 }
 

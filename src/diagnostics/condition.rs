@@ -212,9 +212,13 @@ pub fn estimate(f: &Factorization) -> ConditionEstimate {
         // K is symmetric: K⁻ᵀ = K⁻¹.
         backend.solve_in_place(block, MemStack::new(&mut buf));
     });
+    // A factorization that observed zero pivots has a singular K: its solves are those of a
+    // regularized or reduced system (for example dependent rows dropped by the rank
+    // analysis), so the estimate of that operator would understate κ(K) = ∞.
+    let singular = f.inertia().is_some_and(|i| i.zero > 0);
     let kappa = if dim == 0 {
         0.0
-    } else if est.estimate.is_finite() {
+    } else if est.estimate.is_finite() && !singular {
         norm * est.estimate
     } else {
         f64::INFINITY

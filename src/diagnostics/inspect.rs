@@ -120,7 +120,17 @@ pub fn inspect(problem: &Problem, options: &Options) -> Result<Inspection> {
         ),
         Ok(None) => (None, "this method does not observe the inertia of K".to_string()),
         Err(Error::Singular { .. }) => (None, singular_diagnosis(n, m, &constraints)),
+        // Infeasible / unbounded: the diagnosis is the finding itself.
+        Err(e) if e.is_no_solution() => (None, e.to_string()),
         Err(e) => return Err(e),
+    };
+    // A singular K that the rank analysis resolved (dropped redundant rows, a non-unique
+    // minimizer): say why K is singular before what was concluded.
+    let diagnosis = match inertia {
+        Some(i) if i.zero > 0 && verdict.is_some() => {
+            format!("{}; {}", singular_diagnosis(n, m, &constraints), diagnosis)
+        }
+        _ => diagnosis,
     };
     Ok(Inspection {
         n,

@@ -426,9 +426,19 @@ fn outer_on(like: &Matrix, g: impl Fn(usize, usize) -> f64) -> Matrix {
 /// [`Factorization::solve`]: plan options `refinement_target`, `max_refinement_steps`,
 /// `accept_backward_error`). Returns `Z` and the largest normwise backward error.
 ///
-/// Refuses a singular K ([`Error::Singular`]), whose solves have no meaning.
+/// Refuses a singular K ([`Error::Singular`]), whose solves have no meaning: even when the
+/// rank analysis resolved the solve itself (redundant rows dropped, a non-unique
+/// minimizer), the derivatives of (x, y) are not defined there.
 pub(crate) fn solve_refined(f: &Factorization, rhs: MatRef<'_, f64>) -> Result<(Mat<f64>, f64)> {
     f.verdict()?;
+    if let Some(inertia) = f.inertia().filter(|i| i.zero > 0) {
+        return Err(Error::Singular {
+            inertia,
+            detail: "the derivatives of (x, y) are not defined at a singular KKT matrix (dependent constraints \
+                     make the multipliers non-unique; a flat reduced Hessian makes x non-unique)"
+                .to_string(),
+        });
+    }
     let backend = f.backend();
     let opts = f.plan().options();
     let problem = f.problem();
