@@ -107,7 +107,7 @@ impl Schur {
             return Ok(());
         }
         let dmax = (0..dim).fold(0.0f64, |acc, i| acc.max(a[(i, i)]));
-        if let Some(i) = (0..dim).find(|&i| !(a[(i, i)] > 0.0)) {
+        if let Some(i) = (0..dim).find(|&i| a[(i, i)].partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater)) {
             return Err(format!(
                 "{what} has a non-positive diagonal entry at {i} (value {:e})",
                 a[(i, i)]
@@ -131,7 +131,7 @@ impl Schur {
             }
         })?;
         let tol = self.params.pivot_factor * dim as f64 * f64::EPSILON * dmax;
-        if let Some(i) = (0..dim).find(|&i| !(a[(i, i)] * a[(i, i)] > tol)) {
+        if let Some(i) = (0..dim).find(|&i| (a[(i, i)] * a[(i, i)]).partial_cmp(&tol) != Some(std::cmp::Ordering::Greater)) {
             return Err(format!(
                 "{what} is numerically singular (Cholesky pivot {i}: {:.2e} ≤ {tol:.1e})",
                 a[(i, i)] * a[(i, i)]
