@@ -72,7 +72,10 @@ fn convex(n: usize, m: usize, seed: u64) -> Problem {
 }
 
 fn run(p: &Problem, method: Method) -> tangency::Solution {
-    let opts = Options { method, ..Default::default() };
+    let opts = Options {
+        method,
+        ..Default::default()
+    };
     let plan = Plan::analyze(p, &opts).expect("analyze");
     let f = plan.factor(p).expect("factor");
     f.solve().expect("solve")
@@ -86,7 +89,14 @@ fn gemm_rate() -> f64 {
     let mut best = f64::INFINITY;
     for _ in 0..3 {
         let t = Instant::now();
-        faer::linalg::matmul::matmul(c.as_mut(), faer::Accum::Replace, a.as_ref(), b.as_ref(), 1.0, Par::rayon(0));
+        faer::linalg::matmul::matmul(
+            c.as_mut(),
+            faer::Accum::Replace,
+            a.as_ref(),
+            b.as_ref(),
+            1.0,
+            Par::rayon(0),
+        );
         best = best.min(t.elapsed().as_secs_f64());
     }
     black_box(&c);
@@ -140,7 +150,9 @@ fn lapack_reference(p: &Problem) -> Option<(f64, f64)> {
 
 fn median_of(c: &mut Criterion, group: &str, name: &str, p: &Problem, method: Method) {
     let mut g = c.benchmark_group(group);
-    g.sample_size(10).warm_up_time(Duration::from_millis(500)).measurement_time(Duration::from_secs(8));
+    g.sample_size(10)
+        .warm_up_time(Duration::from_millis(500))
+        .measurement_time(Duration::from_secs(8));
     g.bench_function(name, |bch| bch.iter(|| black_box(run(p, method))));
     g.finish();
 }
@@ -156,7 +168,14 @@ fn convex_3000x1000(c: &mut Criterion) {
     // Factor-only time of the Schur path, for the fraction of the GEMM rate.
     let mut best_factor = f64::INFINITY;
     for _ in 0..3 {
-        let plan = Plan::analyze(&p, &Options { method: Method::Schur, ..Default::default() }).unwrap();
+        let plan = Plan::analyze(
+            &p,
+            &Options {
+                method: Method::Schur,
+                ..Default::default()
+            },
+        )
+        .unwrap();
         let t = Instant::now();
         let f = plan.factor(&p).unwrap();
         best_factor = best_factor.min(t.elapsed().as_secs_f64());
@@ -185,7 +204,7 @@ fn convex_3000x1000(c: &mut Criterion) {
 }
 
 fn shapes(c: &mut Criterion) {
-    for (label, ratio) in [("0.1", 0.1), ("0.5", 0.5), ("0.9", 0.9)] {
+    for (label, ratio) in [("0.1", 0.1f64), ("0.5", 0.5), ("0.9", 0.9)] {
         let n = (3000.0 / (1.0 + ratio)).round() as usize;
         let m = 3000 - n;
         let p = convex(n, m, 7);

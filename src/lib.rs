@@ -45,7 +45,11 @@
 //! * Verdict (Nocedal & Wright 2006, ch. 16; Gould 1985): inertia of K equal to `(n, m, 0)`
 //!   ⇔ `A` has full row rank and the reduced Hessian is positive definite ⇔ the point is the
 //!   unique global minimizer ([`Verdict::Minimizer`]). Nonsingular K with another inertia:
-//!   [`Verdict::Saddle`]. Singular K: [`Error::Singular`].
+//!   [`Verdict::Saddle`]. Singular K goes to the rank analysis of
+//!   [`diagnostics::rank`]: redundant rows are dropped (named in the notes, minimum-norm
+//!   multipliers), contradictory ones give [`Error::Infeasible`], a singular reduced
+//!   Hessian gives [`Verdict::NonUnique`] (with [`Solution::null_direction`]) or
+//!   [`Error::Unbounded`] (with a descent direction).
 //! * Triangles: a [`Triangle::Lower`] or [`Triangle::Upper`] dense `H` reads only that
 //!   triangle; sparse input must not have entries in the other triangle. A
 //!   [`Triangle::Full`] `H` must be symmetric within
@@ -74,11 +78,11 @@
 //!
 //! ## Current state
 //!
-//! Implemented: dense LBLᵀ with equilibration, inertia, verdict, refinement; builders;
-//! Matrix Market I/O; the `tangency` command line. Not yet: sparse LDLᵀ, Schur-complement
-//! and null-space methods, rank analysis that names dependent constraints, condition
-//! estimates and sensitivities, iterative methods (these are planned; singular KKT
-//! matrices are reported as [`Error::Singular`] without finer diagnosis for now).
+//! Implemented: dense LBLᵀ with equilibration, inertia, verdict, refinement; Schur-complement
+//! and null-space methods with an auto cost model; rank analysis that names dependent
+//! constraints; builders; Matrix Market I/O; the `tangency` command line. Not yet: sparse
+//! LDLᵀ, condition estimates and sensitivities, iterative methods. The Schur and
+//! null-space methods and the rank analysis work on dense copies of `H` and `A`.
 #![deny(missing_docs)]
 
 pub mod backend;

@@ -254,12 +254,21 @@ impl KktBackend for NullSpace {
             Matrix::Sparse(h) => h * &self.z,
         };
         let mut mred = Mat::zeros(nz, nz);
-        faer::linalg::matmul::matmul(mred.as_mut(), faer::Accum::Replace, self.z.transpose(), hz.as_ref(), 1.0, par);
+        faer::linalg::matmul::matmul(
+            mred.as_mut(),
+            faer::Accum::Replace,
+            self.z.transpose(),
+            hz.as_ref(),
+            1.0,
+            par,
+        );
         let msym = Mat::from_fn(nz, nz, |i, j| 0.5 * (mred[(i, j)] + mred[(j, i)]));
         let tol = self.zero_tol();
-        let chol = msym.llt(Side::Lower).ok().map(|f| f.L().to_owned()).filter(|l| {
-            (0..nz).all(|i| l[(i, i)] * l[(i, i)] > tol)
-        });
+        let chol = msym
+            .llt(Side::Lower)
+            .ok()
+            .map(|f| f.L().to_owned())
+            .filter(|l| (0..nz).all(|i| l[(i, i)] * l[(i, i)] > tol));
         let red_inertia;
         self.reduced = match chol {
             Some(l) => {
@@ -378,7 +387,11 @@ impl NullSpace {
         }
         let red = self.reduced_inertia();
         if red.zero == 0 {
-            out.verdict = Some(if red.negative == 0 { Verdict::Minimizer } else { Verdict::Saddle });
+            out.verdict = Some(if red.negative == 0 {
+                Verdict::Minimizer
+            } else {
+                Verdict::Saddle
+            });
             return Ok(out);
         }
         let Reduced::Eigen { u, s, tol: ztol } = &self.reduced else {

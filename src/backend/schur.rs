@@ -107,10 +107,17 @@ impl Schur {
             return Ok(());
         }
         let dmax = (0..dim).fold(0.0f64, |acc, i| acc.max(a[(i, i)]));
-        if let Some(i) = (0..dim).find(|&i| !(a[(i, i)] > 0.0)) {
-            return Err(format!("{what} has a non-positive diagonal entry at {i} (value {:e})", a[(i, i)]));
+        if let Some(i) = (0..dim).find(|&i| a[(i, i)].partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater)) {
+            return Err(format!(
+                "{what} has a non-positive diagonal entry at {i} (value {:e})",
+                a[(i, i)]
+            ));
         }
-        let mut buf = MemBuffer::new(llt::cholesky_in_place_scratch::<f64>(dim, self.params.par, Default::default()));
+        let mut buf = MemBuffer::new(llt::cholesky_in_place_scratch::<f64>(
+            dim,
+            self.params.par,
+            Default::default(),
+        ));
         llt::cholesky_in_place(
             a.as_mut(),
             LltRegularization::default(),
@@ -124,7 +131,7 @@ impl Schur {
             }
         })?;
         let tol = self.params.pivot_factor * dim as f64 * f64::EPSILON * dmax;
-        if let Some(i) = (0..dim).find(|&i| !(a[(i, i)] * a[(i, i)] > tol)) {
+        if let Some(i) = (0..dim).find(|&i| (a[(i, i)] * a[(i, i)]).partial_cmp(&tol) != Some(std::cmp::Ordering::Greater)) {
             return Err(format!(
                 "{what} is numerically singular (Cholesky pivot {i}: {:.2e} ≤ {tol:.1e})",
                 a[(i, i)] * a[(i, i)]
@@ -255,7 +262,9 @@ impl KktBackend for Schur {
             let (method, _) = auto::choose_without_schur(problem);
             let mut fb = auto::make_backend(method, problem, &self.options);
             fb.factor(problem)?;
-            self.notes.push(format!("Schur-complement method refused: {reason}; fell back to {method}"));
+            self.notes.push(format!(
+                "Schur-complement method refused: {reason}; fell back to {method}"
+            ));
             self.notes.extend(fb.notes().iter().cloned());
             // Release the Schur storage while the fallback is in use.
             self.l = Mat::zeros(0, 0);

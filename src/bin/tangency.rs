@@ -25,7 +25,9 @@ enum Command {
     Solve {
         /// The problem directory.
         dir: PathBuf,
-        /// Factorization method: auto, dense, sparse, schur or nullspace.
+        /// Factorization method: auto, dense (LBLᵀ), sparse (regularized sparse LDLᵀ), schur
+        /// (Cholesky of H and A H⁻¹ Aᵀ, convex problems) or nullspace (QR of Aᵀ, reduced
+        /// Hessian).
         #[arg(long, default_value = "auto")]
         method: String,
         /// Write x.mtx and multipliers.mtx into this directory.

@@ -60,7 +60,11 @@ pub struct Dependency {
 fn fmt_coef(v: f64) -> String {
     let s = format!("{:.6}", v.abs());
     let s = s.trim_end_matches('0');
-    let s = if s.ends_with('.') { format!("{s}0") } else { s.to_string() };
+    let s = if s.ends_with('.') {
+        format!("{s}0")
+    } else {
+        s.to_string()
+    };
     s
 }
 
@@ -301,8 +305,7 @@ impl RankAnalysis {
                 MemStack::new(&mut buf),
             );
         } else {
-            let req =
-                householder::apply_block_householder_sequence_on_the_left_in_place_scratch::<f64>(self.n, bs, k);
+            let req = householder::apply_block_householder_sequence_on_the_left_in_place_scratch::<f64>(self.n, bs, k);
             let mut buf = MemBuffer::new(req);
             householder::apply_block_householder_sequence_on_the_left_in_place_with_conj(
                 self.q_basis.as_ref(),
