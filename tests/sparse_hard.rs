@@ -129,8 +129,14 @@ fn badly_scaled_blocks() {
     assert!(s.backward_error <= 1e-15, "{}", s.backward_error);
     let d = tangency::solve(&p, &Options { method: Method::Dense, ..Default::default() }).unwrap();
     assert_eq!(s.inertia, d.inertia);
+    // K is ill-conditioned by construction (cond ≈ 1e14 after scaling: curvature 1e-8
+    // against 1e6), so the forward error is bounded by cond·backward error, not by ε: the
+    // stiff half is determined to 1e-10, the soft half only to about 1e-3 — by both
+    // backends alike.
     for i in 0..n {
-        assert!((s.x[i] - xs[i]).abs() <= 1e-8 * xs[i].abs(), "x[{i}] = {} vs {}", s.x[i], xs[i]);
+        let tol = if i < n / 2 { 1e-3 } else { 1e-10 };
+        assert!((s.x[i] - xs[i]).abs() <= tol * xs[i].abs(), "x[{i}] = {} vs {}", s.x[i], xs[i]);
+        assert!((s.x[i] - d.x[i]).abs() <= tol * xs[i].abs(), "sparse and dense differ at x[{i}]");
     }
 }
 
