@@ -479,10 +479,8 @@ pub(crate) fn solve_refined(f: &Factorization, rhs: MatRef<'_, f64>) -> Result<(
     let worst = omega
         .iter()
         .fold(0.0f64, |a, &w| if w.is_nan() { f64::INFINITY } else { a.max(w) });
-    // NaN-safe: anything not provably within the acceptance level is refused.
-    if worst.partial_cmp(&opts.accept_backward_error) != Some(std::cmp::Ordering::Less)
-        && worst != opts.accept_backward_error
-    {
+    // `worst` is never NaN (mapped to +∞ above).
+    if worst > opts.accept_backward_error {
         return Err(Error::Inaccurate {
             backward_error: worst,
             steps,
