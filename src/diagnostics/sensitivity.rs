@@ -389,8 +389,9 @@ pub fn adjoint(f: &Factorization, s: &Solution, gx: &[f64], gy: &[f64]) -> Resul
     let dz = d.col_as_slice(0).to_vec();
     let (dx, dy) = dz.split_at(n);
     let (x, y) = (&s.x[..], &s.y[..]);
-    let h = outer_on(p.hessian(), |i, j| -0.5 * (dx[i] * x[j] + x[i] * dx[j]));
-    let a = outer_on(p.constraints(), |i, j| -(dy[i] * x[j] + y[i] * dx[j]));
+    // ∂ℓ/∂H = −½(dx xᵀ + x dxᵀ), ∂ℓ/∂A = −(dy xᵀ + y dxᵀ): rank-2 outer products.
+    let h = outer_on(p.hessian(), dx, x, x, dx, -0.5);
+    let a = outer_on(p.constraints(), dy, x, y, dx, -1.0);
     Ok(Adjoint {
         h,
         c: dx.iter().map(|v| -v).collect(),
@@ -401,9 +402,10 @@ pub fn adjoint(f: &Factorization, s: &Solution, gx: &[f64], gy: &[f64]) -> Resul
     })
 }
 
-/// A matrix shaped and stored like `like` (dense, or sparse on the same pattern) with
-/// entries `g(i, j)`.
-fn outer_on(like: &Matrix, g: impl Fn(usize, usize) -> f64) -> Matrix {
+/// `scale · (u vᵀ + p qᵀ)` shaped and stored like `like`: dense for a dense block (filled
+/// column by column, vectorizable), on the same pattern for a sparse one. With `scale` a
+/// power of two (here −½ and −1) and `(p, q) = (v, u)`, the result is exactly symmetric.
+fn outer_on(like: &Matrix, u: &[f64], v: &[f64], p: &[f64], q: &[f64], scale: f64) -> Matrix {
     match like {
         Matrix::Sparse(s) => {
             let mut out = s.clone();
@@ -412,12 +414,22 @@ fn outer_on(like: &Matrix, g: impl Fn(usize, usize) -> f64) -> Matrix {
             let val = out.val_mut();
             for j in 0..s.ncols() {
                 for k in cp[j]..cp[j + 1] {
-                    val[k] = g(ri[k], j);
+                    let i = ri[k];
+                    val[k] = scale * (u[i] * v[j] + p[i] * q[j]);
                 }
             }
             Matrix::Sparse(out)
         }
-        _ => Matrix::Dense(Mat::from_fn(like.nrows(), like.ncols(), g)),
+        _ => {
+            let mut out = Mat::<f64>::zeros(like.nrows(), like.ncols());
+            for j in 0..like.ncols() {
+                let (vj, qj) = (scale * v[j], scale * q[j]);
+                for ((o, ui), pi) in out.col_as_slice_mut(j).iter_mut().zip(u).zip(p) {
+                    *o = ui * vj + pi * qj;
+                }
+            }
+            Matrix::Dense(out)
+        }
     }
 }
 
@@ -489,10 +501,8 @@ pub(crate) fn solve_refined(f: &Factorization, rhs: MatRef<'_, f64>) -> Result<(
     let worst = omega
         .iter()
         .fold(0.0f64, |a, &w| if w.is_nan() { f64::INFINITY } else { a.max(w) });
-    // NaN-safe: anything not provably within the acceptance level is refused.
-    if worst.partial_cmp(&opts.accept_backward_error) != Some(std::cmp::Ordering::Less)
-        && worst != opts.accept_backward_error
-    {
+    // `worst` is never NaN (mapped to +∞ above).
+    if worst > opts.accept_backward_error {
         return Err(Error::Inaccurate {
             backward_error: worst,
             steps,
