@@ -90,6 +90,7 @@ pub mod problem;
 pub mod report;
 pub mod solution;
 pub mod solver;
+pub mod stagewise;
 
 pub use backend::dense_lblt::{DenseParams, Pivoting};
 pub use error::{Block, Error, Result};

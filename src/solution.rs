@@ -81,6 +81,8 @@ impl fmt::Display for Verdict {
 pub enum MethodUsed {
     /// Dense symmetric-indefinite LBLᵀ (Bunch–Kaufman family).
     DenseLblt,
+    /// Riccati recursion over the stages of a stage-wise (optimal control) problem.
+    Riccati,
 }
 
 impl MethodUsed {
@@ -88,6 +90,7 @@ impl MethodUsed {
     pub fn as_str(self) -> &'static str {
         match self {
             MethodUsed::DenseLblt => "dense",
+            MethodUsed::Riccati => "riccati",
         }
     }
 }

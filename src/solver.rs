@@ -25,11 +25,13 @@ pub enum Method {
     Auto,
     /// Dense symmetric-indefinite LBLᵀ.
     Dense,
+    /// Riccati recursion for stage-wise problems; needs [`Options::stages`].
+    Riccati,
 }
 
 impl Method {
     /// Every method name the command line accepts.
-    pub const NAMES: &'static [&'static str] = &["auto", "dense"];
+    pub const NAMES: &'static [&'static str] = &["auto", "dense", "riccati"];
 }
 
 impl FromStr for Method {
@@ -38,6 +40,7 @@ impl FromStr for Method {
         match s {
             "auto" => Ok(Method::Auto),
             "dense" => Ok(Method::Dense),
+            "riccati" => Ok(Method::Riccati),
             other => Err(Error::InvalidOption(format!(
                 "unknown method '{other}'; known methods: {}",
                 Method::NAMES.join(", ")
@@ -75,6 +78,9 @@ pub struct Options {
     /// Refuse solutions whose backward error stays above this. Default:
     /// [`DEFAULT_ACCEPT_BACKWARD_ERROR`].
     pub accept_backward_error: f64,
+    /// Stage dimensions `(nx, nu, N)` for [`Method::Riccati`] (layout in
+    /// [`crate::stagewise`]). Default: `None`.
+    pub stages: Option<crate::stagewise::StageDims>,
 }
 
 impl Default for Options {
@@ -85,6 +91,7 @@ impl Default for Options {
             max_refinement_steps: DEFAULT_MAX_REFINEMENT_STEPS,
             refinement_target: DEFAULT_REFINEMENT_TARGET,
             accept_backward_error: DEFAULT_ACCEPT_BACKWARD_ERROR,
+            stages: None,
         }
     }
 }
@@ -98,14 +105,28 @@ pub struct Plan {
     reason: String,
     options: Options,
     analyze_s: f64,
+    stage_structure: Option<std::sync::Arc<crate::stagewise::StageStructure>>,
+    notes: Vec<String>,
 }
 
 impl Plan {
     /// Analyzes the structure of `problem` and picks a method.
     pub fn analyze(problem: &Problem, options: &Options) -> Result<Plan> {
         let t = Instant::now();
+        let (mut stage_structure, mut notes) = (None, Vec::new());
         let (method, reason) = match options.method {
             Method::Dense => (MethodUsed::DenseLblt, "requested".to_string()),
+            Method::Riccati => {
+                let choice = crate::stagewise::analyze(problem, options.stages)?;
+                notes = choice.notes;
+                match choice.structure {
+                    Some(st) => {
+                        stage_structure = Some(st);
+                        (MethodUsed::Riccati, choice.reason)
+                    }
+                    None => (MethodUsed::DenseLblt, choice.reason),
+                }
+            }
             Method::Auto => (
                 MethodUsed::DenseLblt,
                 "dense LBLᵀ is the only factorization available for this structure".to_string(),
@@ -118,6 +139,8 @@ impl Plan {
             reason,
             options: *options,
             analyze_s: t.elapsed().as_secs_f64(),
+            stage_structure,
+            notes,
         })
     }
 
@@ -137,6 +160,10 @@ impl Plan {
         let t = Instant::now();
         let mut backend: Box<dyn KktBackend> = match self.method {
             MethodUsed::DenseLblt => Box::new(DenseLblt::new(problem, self.options.dense)),
+            MethodUsed::Riccati => match &self.stage_structure {
+                Some(st) => Box::new(crate::stagewise::RiccatiBackend::new(problem, st.clone())),
+                None => return Err(Error::InvalidOption("the Riccati plan has no stage structure".to_string())),
+            },
         };
         backend.factor(problem)?;
         let factor_s = t.elapsed().as_secs_f64();
@@ -360,6 +387,8 @@ impl Factorization {
             solve_s: t.elapsed().as_secs_f64(),
         };
         out.notes.clear();
+        out.notes.extend(self.plan.notes.iter().cloned());
+        out.notes.extend(self.backend.notes().iter().cloned());
         if backward_error > 1e3 * f64::EPSILON {
             out.notes.push(format!(
                 "backward error {backward_error:.1e} stayed above the refinement target after {steps} step(s): \

@@ -41,4 +41,13 @@ pub trait KktBackend: Send + Sync + std::fmt::Debug {
     fn solve_scratch(&self, nrhs: usize) -> StackReq;
     /// Overwrites `rhs` (N×nrhs) with `K⁻¹·rhs`.
     fn solve_in_place(&self, rhs: MatMut<'_, f64>, stack: &mut MemStack);
+    /// Remarks from the last factorization that a user should read (copied into every
+    /// solution's notes). Default: none.
+    fn notes(&self) -> &[String] {
+        &[]
+    }
+    /// The Riccati factorization (gains, value matrices), when this backend is one.
+    fn riccati(&self) -> Option<&crate::stagewise::RiccatiBackend> {
+        None
+    }
 }

@@ -25,9 +25,12 @@ enum Command {
     Solve {
         /// The problem directory.
         dir: PathBuf,
-        /// Factorization method: auto or dense.
+        /// Factorization method: auto, dense or riccati.
         #[arg(long, default_value = "auto")]
         method: String,
+        /// Stage dimensions NX,NU,N for --method riccati (required with it).
+        #[arg(long)]
+        stages: Option<String>,
         /// Write x.mtx and multipliers.mtx into this directory.
         #[arg(long)]
         out: Option<PathBuf>,
@@ -36,7 +39,11 @@ enum Command {
         json: bool,
     },
     /// Build, solve and explain a scenario of our own (a pinned spring lattice).
-    Demo,
+    Demo {
+        /// Instead: a receding-horizon control loop on a two-mass chain (Riccati re-solves).
+        #[arg(long)]
+        control: bool,
+    },
 }
 
 fn exit_code(err: &Error) -> u8 {
@@ -68,7 +75,11 @@ fn main() -> ExitCode {
         }
     };
     match cli.command {
-        Command::Demo => match tangency::demo::run() {
+        Command::Demo { control } => match if control {
+            tangency::stagewise::demo::run()
+        } else {
+            tangency::demo::run()
+        } {
             Ok(text) => {
                 print!("{text}");
                 ExitCode::SUCCESS
@@ -78,11 +89,17 @@ fn main() -> ExitCode {
                 ExitCode::from(exit_code(&e))
             }
         },
-        Command::Solve { dir, method, out, json } => solve(&dir, &method, out.as_deref(), json),
+        Command::Solve {
+            dir,
+            method,
+            stages,
+            out,
+            json,
+        } => solve(&dir, &method, stages.as_deref(), out.as_deref(), json),
     }
 }
 
-fn solve(dir: &std::path::Path, method: &str, out: Option<&std::path::Path>, json: bool) -> ExitCode {
+fn solve(dir: &std::path::Path, method: &str, stages: Option<&str>, out: Option<&std::path::Path>, json: bool) -> ExitCode {
     let fail = |err: Error, sizes: Option<(usize, usize)>, used: Option<&str>, inertia| {
         if json {
             println!("{}", error_json(&err, sizes, used, inertia));
@@ -95,6 +112,29 @@ fn solve(dir: &std::path::Path, method: &str, out: Option<&std::path::Path>, jso
         Ok(m) => m,
         Err(e) => return fail(e, None, None, None),
     };
+    let stages: Option<tangency::stagewise::StageDims> = match (method, stages) {
+        (Method::Riccati, None) => {
+            return fail(
+                Error::InvalidOption("--method riccati needs --stages NX,NU,N (state size, input size, horizon)".into()),
+                None,
+                None,
+                None,
+            )
+        }
+        (Method::Riccati, Some(s)) => match s.parse() {
+            Ok(d) => Some(d),
+            Err(e) => return fail(e, None, None, None),
+        },
+        (_, Some(_)) => {
+            return fail(
+                Error::InvalidOption("--stages applies only to --method riccati".into()),
+                None,
+                None,
+                None,
+            )
+        }
+        (_, None) => None,
+    };
     let problem = match io::read_problem_dir(dir) {
         Ok(p) => p,
         Err(e) => return fail(e, None, None, None),
@@ -102,6 +142,7 @@ fn solve(dir: &std::path::Path, method: &str, out: Option<&std::path::Path>, jso
     let sizes = Some((problem.n(), problem.m()));
     let options = Options {
         method,
+        stages,
         ..Default::default()
     };
     let plan = match Plan::analyze(&problem, &options) {
