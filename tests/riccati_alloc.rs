@@ -41,7 +41,15 @@ static GLOBAL: Counting = Counting;
 #[test]
 fn resolve_does_not_allocate() {
     let (nx, nu, n) = (6, 2, 30);
-    let a = Mat::from_fn(nx, nx, |i, j| if i == j { 0.98 } else if j == i + 1 { 0.1 } else { 0.0 });
+    let a = Mat::from_fn(nx, nx, |i, j| {
+        if i == j {
+            0.98
+        } else if j == i + 1 {
+            0.1
+        } else {
+            0.0
+        }
+    });
     let b = Mat::from_fn(nx, nu, |i, j| if i % nu == j { 0.1 } else { 0.01 });
     let q = Mat::<f64>::identity(nx, nx);
     let r = Mat::from_fn(nu, nu, |i, j| if i == j { 0.5 } else { 0.0 });
@@ -88,4 +96,10 @@ fn resolve_does_not_allocate() {
     }
     assert!(checks.is_finite());
     assert_eq!(ALLOCATIONS.load(Ordering::Relaxed), 0, "solve_into allocated");
+    // The counter does see allocations: the convenience path allocates a workspace.
+    WATCH.with(|w| w.set(true));
+    let s = f.solve_with(&c, &bv);
+    WATCH.with(|w| w.set(false));
+    assert!(s.is_ok());
+    assert!(ALLOCATIONS.load(Ordering::Relaxed) > 0);
 }

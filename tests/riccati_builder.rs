@@ -22,13 +22,22 @@ fn stage_err(e: Error) -> (usize, StageBlock, Option<usize>, Option<usize>) {
 
 #[test]
 fn wrong_shapes_are_named() {
-    let e = base().stage_dynamics(2, mat![[1.0]].as_ref(), mat![[0.0], [0.1]].as_ref()).build().unwrap_err();
+    let e = base()
+        .stage_dynamics(2, mat![[1.0]].as_ref(), mat![[0.0], [0.1]].as_ref())
+        .build()
+        .unwrap_err();
     assert_eq!(stage_err(e), (2, StageBlock::A, None, None));
-    let e = base().stage_dynamics(1, Mat::zeros(2, 2).as_ref(), Mat::zeros(2, 2).as_ref()).build().unwrap_err();
+    let e = base()
+        .stage_dynamics(1, Mat::zeros(2, 2).as_ref(), Mat::zeros(2, 2).as_ref())
+        .build()
+        .unwrap_err();
     assert_eq!(stage_err(e), (1, StageBlock::B, None, None));
     let e = base().stage_offset(3, &[1.0]).build().unwrap_err();
     assert_eq!(stage_err(e), (3, StageBlock::Offset, None, None));
-    let e = base().stage_cross_weight(0, Mat::zeros(2, 1).as_ref()).build().unwrap_err();
+    let e = base()
+        .stage_cross_weight(0, Mat::zeros(2, 1).as_ref())
+        .build()
+        .unwrap_err();
     assert_eq!(stage_err(e), (0, StageBlock::S, None, None));
     let e = base().stage_linear(1, &[0.0, 0.0], &[]).build().unwrap_err();
     assert_eq!(stage_err(e), (1, StageBlock::InputLinear, None, None));
@@ -36,18 +45,28 @@ fn wrong_shapes_are_named() {
     assert_eq!(stage_err(e), (4, StageBlock::TerminalQ, None, None));
     let e = base().initial_state(&[1.0]).build().unwrap_err();
     assert_eq!(stage_err(e), (4, StageBlock::InitialState, None, None));
-    let e = base().stage_cost(7, Mat::zeros(2, 2).as_ref(), Mat::zeros(1, 1).as_ref()).build().unwrap_err();
+    let e = base()
+        .stage_cost(7, Mat::zeros(2, 2).as_ref(), Mat::zeros(1, 1).as_ref())
+        .build()
+        .unwrap_err();
     assert_eq!(stage_err(e), (7, StageBlock::Index, None, None));
 }
 
 #[test]
 fn non_finite_and_asymmetric_values_are_located() {
     let e = base()
-        .stage_dynamics(1, mat![[1.0, 0.1], [f64::NAN, 1.0]].as_ref(), mat![[0.0], [0.1]].as_ref())
+        .stage_dynamics(
+            1,
+            mat![[1.0, 0.1], [f64::NAN, 1.0]].as_ref(),
+            mat![[0.0], [0.1]].as_ref(),
+        )
         .build()
         .unwrap_err();
     assert_eq!(stage_err(e), (1, StageBlock::A, Some(1), Some(0)));
-    let e = base().stage_linear(2, &[0.0, f64::INFINITY], &[0.0]).build().unwrap_err();
+    let e = base()
+        .stage_linear(2, &[0.0, f64::INFINITY], &[0.0])
+        .build()
+        .unwrap_err();
     assert_eq!(stage_err(e), (2, StageBlock::StateLinear, Some(1), Some(0)));
     let e = base()
         .stage_cost(3, mat![[1.0, 0.2], [0.1, 1.0]].as_ref(), mat![[1.0]].as_ref())
@@ -55,7 +74,10 @@ fn non_finite_and_asymmetric_values_are_located() {
         .unwrap_err();
     let text = e.to_string();
     assert_eq!(stage_err(e), (3, StageBlock::Q, Some(0), Some(1)));
-    assert!(text.contains("horizon stage 3") && text.contains("not symmetric"), "{text}");
+    assert!(
+        text.contains("horizon stage 3") && text.contains("not symmetric"),
+        "{text}"
+    );
     // Within the tolerance the block is symmetrized.
     assert!(base()
         .stage_cost(3, mat![[1.0, 0.2], [0.2 + 1e-14, 1.0]].as_ref(), mat![[1.0]].as_ref())

@@ -23,7 +23,11 @@ fn write_problem(dir: &std::path::Path) {
 }
 
 fn field<'a>(json: &'a str, key: &str) -> &'a str {
-    let start = json.find(&format!("\"{key}\":")).unwrap_or_else(|| panic!("{key} in {json}")) + key.len() + 3;
+    let start = json
+        .find(&format!("\"{key}\":"))
+        .unwrap_or_else(|| panic!("{key} in {json}"))
+        + key.len()
+        + 3;
     let rest = &json[start..];
     let end = rest.find([',', '}']).unwrap();
     &rest[..end]
@@ -35,7 +39,16 @@ fn riccati_solves_and_agrees_with_dense() {
     write_problem(dir.path());
     let out_r = dir.path().join("out_r");
     let r = bin()
-        .args(["solve", dir.path().to_str().unwrap(), "--method", "riccati", "--stages", "2,1,8", "--json", "--out"])
+        .args([
+            "solve",
+            dir.path().to_str().unwrap(),
+            "--method",
+            "riccati",
+            "--stages",
+            "2,1,8",
+            "--json",
+            "--out",
+        ])
         .arg(&out_r)
         .output()
         .unwrap();
@@ -50,7 +63,10 @@ fn riccati_solves_and_agrees_with_dense() {
         .output()
         .unwrap();
     let dj = String::from_utf8(d.stdout).unwrap();
-    let (or, od): (f64, f64) = (field(&json, "objective").parse().unwrap(), field(&dj, "objective").parse().unwrap());
+    let (or, od): (f64, f64) = (
+        field(&json, "objective").parse().unwrap(),
+        field(&dj, "objective").parse().unwrap(),
+    );
     assert!((or - od).abs() < 1e-12 * (1.0 + od.abs()));
     assert!(out_r.join("x.mtx").exists() && out_r.join("multipliers.mtx").exists());
 }
@@ -60,18 +76,30 @@ fn missing_or_bad_stages_exit_2() {
     let dir = tempfile::tempdir().unwrap();
     write_problem(dir.path());
     let p = dir.path().to_str().unwrap();
-    let missing = bin().args(["solve", p, "--method", "riccati", "--json"]).output().unwrap();
+    let missing = bin()
+        .args(["solve", p, "--method", "riccati", "--json"])
+        .output()
+        .unwrap();
     assert_eq!(missing.status.code(), Some(2));
     let j = String::from_utf8(missing.stdout).unwrap();
     assert_eq!(field(&j, "status"), "\"invalid_input\"");
     assert!(j.contains("--stages NX,NU,N"), "{j}");
-    let malformed = bin().args(["solve", p, "--method", "riccati", "--stages", "2,1"]).output().unwrap();
+    let malformed = bin()
+        .args(["solve", p, "--method", "riccati", "--stages", "2,1"])
+        .output()
+        .unwrap();
     assert_eq!(malformed.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&malformed.stderr).contains("NX,NU,N"));
-    let wrong = bin().args(["solve", p, "--method", "riccati", "--stages", "2,1,9", "--json"]).output().unwrap();
+    let wrong = bin()
+        .args(["solve", p, "--method", "riccati", "--stages", "2,1,9", "--json"])
+        .output()
+        .unwrap();
     assert_eq!(wrong.status.code(), Some(2));
     assert!(String::from_utf8(wrong.stdout).unwrap().contains("implies n ="));
-    let other = bin().args(["solve", p, "--method", "dense", "--stages", "2,1,8"]).output().unwrap();
+    let other = bin()
+        .args(["solve", p, "--method", "dense", "--stages", "2,1,8"])
+        .output()
+        .unwrap();
     assert_eq!(other.status.code(), Some(2));
     let unknown = bin().args(["solve", p, "--method", "nope", "--json"]).output().unwrap();
     assert!(String::from_utf8(unknown.stdout).unwrap().contains("riccati"));
@@ -83,7 +111,10 @@ fn entry_outside_the_structure_exit_2_names_it() {
     write_problem(dir.path());
     // Wrong nu: with --stages 1,2,8 the variable blocks no longer line up.
     let p = dir.path().to_str().unwrap();
-    let out = bin().args(["solve", p, "--method", "riccati", "--stages", "2,1,8", "--json"]).output().unwrap();
+    let out = bin()
+        .args(["solve", p, "--method", "riccati", "--stages", "2,1,8", "--json"])
+        .output()
+        .unwrap();
     assert_eq!(out.status.code(), Some(0));
     // Add a coupling Hessian entry between x_0[0] (row 1) and x_1[0] (column 4), 1-based.
     let h = std::fs::read_to_string(dir.path().join("H.mtx")).unwrap();
@@ -92,10 +123,16 @@ fn entry_outside_the_structure_exit_2_names_it() {
     lines[1] = format!("{} {} {}", dims[0], dims[1], dims[2] + 1);
     lines.push("4 1 0.5".to_string());
     std::fs::write(dir.path().join("H.mtx"), lines.join("\n") + "\n").unwrap();
-    let bad = bin().args(["solve", p, "--method", "riccati", "--stages", "2,1,8", "--json"]).output().unwrap();
+    let bad = bin()
+        .args(["solve", p, "--method", "riccati", "--stages", "2,1,8", "--json"])
+        .output()
+        .unwrap();
     assert_eq!(bad.status.code(), Some(2));
     let j = String::from_utf8(bad.stdout).unwrap();
-    assert!(j.contains("H[0,3]") && j.contains("x_0[0]") && j.contains("x_1[0]"), "{j}");
+    assert!(
+        j.contains("H[0,3]") && j.contains("x_0[0]") && j.contains("x_1[0]"),
+        "{j}"
+    );
 }
 
 #[test]

@@ -8,6 +8,8 @@ use tangency::stagewise::{HorizonBuilder, RiccatiBackend};
 use tangency::{Method, Options, Plan, Verdict};
 
 const FIXTURE: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/../shared/fixtures/lqr-two-mass.json");
+/// The same file seen from a worktree one level deeper (/work/wt/issue-N).
+const FIXTURE_FROM_WORKTREE: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/../../shared/fixtures/lqr-two-mass.json");
 
 /// Minimal reader for the fixture: the value of `key` as a matrix (array of arrays).
 fn matrix(text: &str, key: &str) -> Mat<f64> {
@@ -53,7 +55,9 @@ struct Fixture {
 }
 
 fn fixture() -> Fixture {
-    let text = std::fs::read_to_string(FIXTURE).expect("fixture readable");
+    let text = std::fs::read_to_string(FIXTURE)
+        .or_else(|_| std::fs::read_to_string(FIXTURE_FROM_WORKTREE))
+        .expect("fixture readable");
     Fixture {
         a: matrix(&text, "A"),
         b: matrix(&text, "B"),

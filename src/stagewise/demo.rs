@@ -127,7 +127,15 @@ pub struct ControlRun {
 pub fn run_loop(steps: usize, horizon: usize) -> Result<ControlRun> {
     let dt = 0.1;
     let (a, b) = two_mass_plant(dt);
-    let q = Mat::from_fn(4, 4, |i, j| if i != j { 0.0 } else if i % 2 == 0 { 10.0 } else { 1.0 });
+    let q = Mat::from_fn(4, 4, |i, j| {
+        if i != j {
+            0.0
+        } else if i % 2 == 0 {
+            10.0
+        } else {
+            1.0
+        }
+    });
     let r = Mat::from_fn(2, 2, |i, j| if i == j { 0.1 } else { 0.0 });
     let qn = Mat::from_fn(4, 4, |i, j| 10.0 * q[(i, j)]);
     let h = HorizonBuilder::new(4, 2, horizon)
@@ -157,7 +165,10 @@ pub fn run_loop(steps: usize, horizon: usize) -> Result<ControlRun> {
         factor_seconds,
         log: String::new(),
     };
-    let _ = writeln!(run.log, "  step   time   ref p2     p1       p2     |error|   u1       u2      solve µs");
+    let _ = writeln!(
+        run.log,
+        "  step   time   ref p2     p1       p2     |error|   u1       u2      solve µs"
+    );
     for t in 0..steps {
         // Reference preview over the horizon: q_k = −Q x_ref, r_k = −R u_ref.
         for k in 0..=horizon {
@@ -182,9 +193,7 @@ pub fn run_loop(steps: usize, horizon: usize) -> Result<ControlRun> {
         let gust = if (120..130).contains(&t) { 1.0 } else { 0.0 };
         let mut next = [0.0f64; 4];
         for i in 0..4 {
-            next[i] = (0..4).map(|j| a[(i, j)] * x[j]).sum::<f64>()
-                + b[(i, 0)] * (u[0] + gust)
-                + b[(i, 1)] * u[1];
+            next[i] = (0..4).map(|j| a[(i, j)] * x[j]).sum::<f64>() + b[(i, 0)] * (u[0] + gust) + b[(i, 1)] * u[1];
         }
         x = next;
         run.position.push(x[2]);
@@ -233,12 +242,7 @@ pub fn run() -> Result<String> {
         run.factor_seconds * 1e6
     );
     out.push_str(&run.log);
-    let errors: Vec<f64> = run
-        .position
-        .iter()
-        .zip(&run.reference)
-        .map(|(p, r)| p - r)
-        .collect();
+    let errors: Vec<f64> = run.position.iter().zip(&run.reference).map(|(p, r)| p - r).collect();
     let rms = (errors.iter().map(|e| e * e).sum::<f64>() / errors.len() as f64).sqrt();
     let max_abs = |r: std::ops::Range<usize>| errors[r].iter().fold(0.0f64, |a, e| a.max(e.abs()));
     // Settled window (steps 31–55: after the first transient, before the preview of the next

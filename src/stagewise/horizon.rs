@@ -194,10 +194,7 @@ impl<D, C> HorizonBuilder<D, C> {
     }
 
     /// Time-varying dynamics: `f(k)` returns `(Aₖ, Bₖ)` for `k = 0 … N−1`.
-    pub fn dynamics_with(
-        mut self,
-        mut f: impl FnMut(usize) -> (Mat<f64>, Mat<f64>),
-    ) -> HorizonBuilder<HasDynamics, C> {
+    pub fn dynamics_with(mut self, mut f: impl FnMut(usize) -> (Mat<f64>, Mat<f64>)) -> HorizonBuilder<HasDynamics, C> {
         for (k, slot) in self.slots.dynamics.iter_mut().enumerate() {
             *slot = Some(f(k));
         }
@@ -440,7 +437,10 @@ impl HorizonBuilder<HasDynamics, HasCost> {
                 StageBlock::Index,
                 None,
                 None,
-                format!("stage {k} does not exist: the horizon has stages 0 … {}", horizon as isize - 1),
+                format!(
+                    "stage {k} does not exist: the horizon has stages 0 … {}",
+                    horizon as isize - 1
+                ),
             ));
         }
         let mut stages = Vec::with_capacity(horizon);
@@ -524,7 +524,13 @@ fn check_full_row_rank(k: usize, e: &Mat<f64>) -> Result<()> {
         ));
     }
     let sv = e.singular_values().map_err(|_| {
-        stage_err(k, StageBlock::E, None, None, "singular values of Eₖ did not converge".to_string())
+        stage_err(
+            k,
+            StageBlock::E,
+            None,
+            None,
+            "singular values of Eₖ did not converge".to_string(),
+        )
     })?;
     let smax = sv.first().copied().unwrap_or(0.0);
     let smin = sv.last().copied().unwrap_or(0.0);

@@ -229,7 +229,8 @@ pub(crate) fn analyze(problem: &crate::Problem, dims: Option<StageDims>) -> Resu
             notes: Vec::new(),
         }),
         Some(why) => {
-            let text = format!("the Riccati recursion does not apply ({why}); solved with the dense LBLᵀ backend instead");
+            let text =
+                format!("the Riccati recursion does not apply ({why}); solved with the dense LBLᵀ backend instead");
             Ok(RiccatiChoice {
                 structure: None,
                 reason: text.clone(),

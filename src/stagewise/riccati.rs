@@ -185,11 +185,8 @@ impl RiccatiBackend {
         let stages = (0..horizon)
             .map(|k| StageFactor::new(nx, nu, st.constraint_rows(k).len()))
             .collect();
-        let llt_req = faer::linalg::cholesky::llt::factor::cholesky_in_place_scratch::<f64>(
-            nu,
-            Par::Seq,
-            Default::default(),
-        );
+        let llt_req =
+            faer::linalg::cholesky::llt::factor::cholesky_in_place_scratch::<f64>(nu, Par::Seq, Default::default());
         RiccatiBackend {
             n: problem.n(),
             m: problem.m(),
@@ -390,7 +387,13 @@ impl RiccatiBackend {
         let chol_ok = {
             let mut l = mt.clone();
             let stack = MemStack::new(&mut t.llt_buf);
-            match cholesky_in_place(l.as_mut(), LltRegularization::default(), Par::Seq, stack, Default::default()) {
+            match cholesky_in_place(
+                l.as_mut(),
+                LltRegularization::default(),
+                Par::Seq,
+                stack,
+                Default::default(),
+            ) {
                 Ok(_) => {
                     solve_lower_triangular_in_place(l.as_ref(), w.as_mut(), Par::Seq);
                     solve_upper_triangular_in_place(l.transpose(), w.as_mut(), Par::Seq);

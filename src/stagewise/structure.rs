@@ -89,7 +89,10 @@ impl StageStructure {
             return if j == i && v == 1.0 {
                 Ok(Slot::Identity)
             } else if j == i {
-                Err(format!("rows 0…{} must be the identity on x₀ (x₀ = x̂); expected 1", nx - 1))
+                Err(format!(
+                    "rows 0…{} must be the identity on x₀ (x₀ = x̂); expected 1",
+                    nx - 1
+                ))
             } else {
                 Err(format!(
                     "rows 0…{} must be the identity on x₀ (x₀ = x̂); this entry touches {}",
@@ -114,7 +117,9 @@ impl StageStructure {
                 return if v == 1.0 {
                     Ok(Slot::Identity)
                 } else {
-                    Err(format!("the dynamics rows of x_{r} must have the identity on x_{r}; expected 1"))
+                    Err(format!(
+                        "the dynamics rows of x_{r} must have the identity on x_{r}; expected 1"
+                    ))
                 };
             }
             return Err(format!(
@@ -251,7 +256,9 @@ pub fn detect(problem: &Problem, dims: StageDims) -> Result<StageStructure> {
     let mut worst: Offender = None;
     // Keeps the first offender: H before A, then row-major order.
     fn keep(worst: &mut Offender, block: Block, i: usize, j: usize, v: f64, why: String) {
-        if worst.as_ref().is_none_or(|w| (block == Block::H && w.0 == Block::A) || (block == w.0 && (i, j) < (w.1, w.2)))
+        if worst
+            .as_ref()
+            .is_none_or(|w| (block == Block::H && w.0 == Block::A) || (block == w.0 && (i, j) < (w.1, w.2)))
         {
             *worst = Some((block, i, j, v, why));
         }
@@ -290,7 +297,8 @@ pub fn detect(problem: &Problem, dims: StageDims) -> Result<StageStructure> {
                 i,
                 j,
                 0.0,
-                "is missing: the initial-state and dynamics rows need a unit entry on the state they define".to_string(),
+                "is missing: the initial-state and dynamics rows need a unit entry on the state they define"
+                    .to_string(),
             );
         }
     }
