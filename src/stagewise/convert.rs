@@ -35,9 +35,9 @@ impl Horizon {
         let mut c = vec![0.0; n];
         let mut a = Vec::with_capacity(nx + big_n * nx * (d.width() + 1) + p_total * d.width());
         let mut b = vec![0.0; m];
-        for i in 0..nx {
+        for (i, (bi, xi)) in b.iter_mut().zip(&self.x_init).enumerate() {
             a.push((i, i, 1.0));
-            b[i] = self.x_init[i];
+            *bi = *xi;
         }
         let mut crow = d.n_dynamics_rows();
         for (k, st) in self.stages.iter().enumerate() {

@@ -350,7 +350,7 @@ impl RiccatiBackend {
             let sig = svd.S().column_vector();
             let smax = sig[0];
             let smin = sig[pdim - 1];
-            if !(smin > super::horizon::rank_tolerance(pdim, nu, smax)) {
+            if smin.is_nan() || smin <= super::horizon::rank_tolerance(pdim, nu, smax) {
                 return Err(Error::Stage {
                     stage: k,
                     block: super::StageBlock::E,

@@ -182,7 +182,7 @@ impl StageStructure {
             let sv = e.singular_values().unwrap_or_default();
             let smax = sv.first().copied().unwrap_or(0.0);
             let smin = sv.last().copied().unwrap_or(0.0);
-            if !(smin > rank_tolerance(e.nrows(), d.nu, smax)) {
+            if smin.is_nan() || smin <= rank_tolerance(e.nrows(), d.nu, smax) {
                 return Some(format!(
                     "the input part E_{k} of the {} constraint row(s) of stage {k} is not of full row rank \
                      (smallest singular value {smin:.2e}): a row constrains the state only, or rows are dependent",
