@@ -75,7 +75,9 @@
 //! ## Current state
 //!
 //! Implemented: dense LBLᵀ with equilibration, inertia, verdict, refinement; builders;
-//! Matrix Market I/O; the `tangency` command line. Not yet: sparse LDLᵀ, Schur-complement
+//! Matrix Market I/O; the `tangency` command line. Stage-wise (optimal control) problems:
+//! a typed horizon builder and the Riccati-recursion backend with allocation-free re-solves
+//! ([`stagewise`]). Not yet: sparse LDLᵀ, Schur-complement
 //! and null-space methods, rank analysis that names dependent constraints, condition
 //! estimates and sensitivities, iterative methods (these are planned; singular KKT
 //! matrices are reported as [`Error::Singular`] without finer diagnosis for now).

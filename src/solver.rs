@@ -162,7 +162,11 @@ impl Plan {
             MethodUsed::DenseLblt => Box::new(DenseLblt::new(problem, self.options.dense)),
             MethodUsed::Riccati => match &self.stage_structure {
                 Some(st) => Box::new(crate::stagewise::RiccatiBackend::new(problem, st.clone())),
-                None => return Err(Error::InvalidOption("the Riccati plan has no stage structure".to_string())),
+                None => {
+                    return Err(Error::InvalidOption(
+                        "the Riccati plan has no stage structure".to_string(),
+                    ))
+                }
             },
         };
         backend.factor(problem)?;

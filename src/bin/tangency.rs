@@ -99,7 +99,13 @@ fn main() -> ExitCode {
     }
 }
 
-fn solve(dir: &std::path::Path, method: &str, stages: Option<&str>, out: Option<&std::path::Path>, json: bool) -> ExitCode {
+fn solve(
+    dir: &std::path::Path,
+    method: &str,
+    stages: Option<&str>,
+    out: Option<&std::path::Path>,
+    json: bool,
+) -> ExitCode {
     let fail = |err: Error, sizes: Option<(usize, usize)>, used: Option<&str>, inertia| {
         if json {
             println!("{}", error_json(&err, sizes, used, inertia));
