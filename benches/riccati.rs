@@ -1,6 +1,6 @@
 //! Riccati recursion on stage-wise problems, nx = 12, nu = 4, N ∈ {10, 50, 200, 1000}:
 //! factor + solve, re-solve only (new x̂ and linear terms, same factorization), and the
-//! dense LBLᵀ backend on the same problems for small N, side by side in one run.
+//! sparse LDLᵀ backend for every N and the dense LBLᵀ backend for small N, side by side in one run.
 //!
 //! Run: `cargo bench --bench riccati`. Targets (issue 8): cost linear in N (N = 1000 within
 //! 5.5× of N = 200), re-solve ≥ 3× faster than factor + solve, factor + solve ≥ 5× faster
@@ -87,9 +87,20 @@ fn bench(c: &mut Criterion) {
                 })
             });
         }
-        // SPARSE BACKEND SPOT (issue 3): once the sparse LDLᵀ backend is on main, add
-        // `sparse_factor_solve` here for every N with its `Method` variant, the same
-        // problem and the same refactor + solve_into loop, to check the ≥ 5× target at N = 200.
+        // The sparse LDLᵀ backend (issue 3) on the same problem, same refactor + solve_into loop.
+        let sparse = Options {
+            method: Method::Sparse,
+            ..Default::default()
+        };
+        let mut fs = Plan::analyze(&p, &sparse).unwrap().factor(&p).unwrap();
+        let mut wss = fs.workspace();
+        let mut outs = Solution::empty(p.n(), p.m(), fs.plan().method());
+        group.bench_with_input(BenchmarkId::new("sparse_factor_solve", n), &n, |bch, _| {
+            bch.iter(|| {
+                fs.refactor(&p).unwrap();
+                fs.solve_into(&cvec, &bvec, &mut wss, &mut outs).unwrap();
+            })
+        });
     }
     group.finish();
 }

@@ -175,6 +175,12 @@ pub enum Error {
         /// What the singularity most likely means for the problem.
         detail: String,
     },
+    /// The factorization needs more memory or larger indices than available.
+    #[error("not enough resources: {detail}")]
+    Resources {
+        /// What could not be allocated.
+        detail: String,
+    },
     /// The solve finished but its backward error stayed above the acceptance level even
     /// after refinement: the answer is not trustworthy (K is numerically singular).
     #[error(
@@ -222,6 +228,40 @@ pub enum Error {
         /// Why it lies outside the structure.
         detail: String,
     },
+    /// The constraints contradict each other: some row of `A` is a linear combination of
+    /// others but its `b` entry is not the same combination of theirs. Recover by fixing
+    /// `b` (or removing one of the named rows).
+    #[error("the constraints are infeasible: {detail}")]
+    Infeasible {
+        /// Rows (0-based) involved in the contradiction with the largest gap: the dependent
+        /// row first, then the rows it is a combination of.
+        rows: Vec<usize>,
+        /// Size of that contradiction, `|b_dep − Σ coef·b_i|`.
+        gap: f64,
+        /// Every contradiction found, in words.
+        detail: String,
+    },
+    /// The objective is unbounded below on the feasible set along a direction of zero
+    /// curvature (singular reduced Hessian, gradient not orthogonal to its null space).
+    /// Recover by adding curvature (regularize `H`) or constraints fixing that direction.
+    #[error("the objective is unbounded below: {detail}")]
+    Unbounded {
+        /// A feasible direction `d` (`Ad = 0`, `dᵀHd = 0`, `‖d‖₂ = 1`) along which the
+        /// objective decreases linearly without bound.
+        direction: Vec<f64>,
+        /// Rate of decrease `(Hx + c)ᵀd < 0` along `direction` (the same at every feasible x).
+        slope: f64,
+        /// Explanation in words.
+        detail: String,
+    },
+    /// A direction, seed or request given to a sensitivity routine
+    /// ([`crate::diagnostics::sensitivity`]) is malformed (wrong length or shape, NaN/Inf, a
+    /// non-symmetric `δH`). Recover by correcting the argument named in the message.
+    #[error("invalid sensitivity input: {detail}")]
+    InvalidSensitivityInput {
+        /// What is wrong, naming the argument, row and column.
+        detail: String,
+    },
 }
 
 impl Error {
@@ -232,13 +272,18 @@ impl Error {
 
     /// True for well-formed problems without a trustworthy solution (CLI exit code 3).
     pub fn is_no_solution(&self) -> bool {
-        matches!(self, Error::Singular { .. } | Error::Inaccurate { .. })
+        matches!(
+            self,
+            Error::Singular { .. } | Error::Inaccurate { .. } | Error::Infeasible { .. } | Error::Unbounded { .. }
+        )
     }
 
     /// Short machine-readable status word used by the command line's JSON.
     pub fn status(&self) -> &'static str {
         match self {
             Error::Singular { .. } | Error::Inaccurate { .. } => "singular",
+            Error::Infeasible { .. } => "infeasible",
+            Error::Unbounded { .. } => "unbounded",
             _ => "invalid_input",
         }
     }

@@ -85,7 +85,9 @@
 
 pub mod backend;
 pub mod demo;
+pub mod diagnostics;
 pub mod error;
+pub mod generate;
 pub mod io;
 pub mod kkt;
 pub mod problem;

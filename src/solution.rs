@@ -59,7 +59,7 @@ impl Verdict {
     pub fn explain(self) -> &'static str {
         match self {
             Verdict::Minimizer => {
-                "unique global minimizer: the constraints are independent and the objective curves upward along every feasible direction"
+                "unique global minimizer: the objective curves upward along every feasible direction"
             }
             Verdict::Saddle => {
                 "stationary point, NOT a minimizer: the objective curves downward along some feasible direction and is unbounded below on the feasible set"
@@ -83,6 +83,12 @@ pub enum MethodUsed {
     DenseLblt,
     /// Riccati recursion over the stages of a stage-wise (optimal control) problem.
     Riccati,
+    /// Range-space method: Cholesky of `H`, then of the Schur complement `A H⁻¹ Aᵀ`.
+    Schur,
+    /// Null-space method: rank-revealing QR of `Aᵀ`, reduced Hessian `ZᵀHZ`.
+    NullSpace,
+    /// Sparse LDLᵀ with a fill-reducing ordering and regularized pivots.
+    SparseLdlt,
 }
 
 impl MethodUsed {
@@ -91,6 +97,9 @@ impl MethodUsed {
         match self {
             MethodUsed::DenseLblt => "dense",
             MethodUsed::Riccati => "riccati",
+            MethodUsed::Schur => "schur",
+            MethodUsed::NullSpace => "nullspace",
+            MethodUsed::SparseLdlt => "sparse",
         }
     }
 }
@@ -118,6 +127,7 @@ impl Solution {
             method,
             timing: Timing::default(),
             notes: Vec::new(),
+            null_direction: None,
         }
     }
 }
@@ -164,4 +174,8 @@ pub struct Solution {
     pub timing: Timing,
     /// Remarks a user should read (fallbacks taken, accuracy concerns).
     pub notes: Vec<String>,
+    /// For [`Verdict::NonUnique`]: a unit direction `d` with `Ad = 0` and `ZᵀHd = 0`
+    /// (a null vector of the reduced Hessian `ZᵀHZ`, mapped back by `Z`), so `x + t·d` is a
+    /// minimizer for every `t`; the returned `x` is the minimizer of minimum 2-norm. `None` otherwise.
+    pub null_direction: Option<Vec<f64>>,
 }

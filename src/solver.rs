@@ -9,8 +9,11 @@ use std::time::Instant;
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::Mat;
 
-use crate::backend::dense_lblt::{DenseLblt, DenseParams};
-use crate::backend::KktBackend;
+use crate::backend::dense_lblt::DenseParams;
+use crate::backend::null_space::{NullSpace, NullSpaceParams};
+use crate::backend::schur::SchurParams;
+use crate::backend::sparse_ldlt::{self, SparseAnalysis, SparseLdlt, SparseParams};
+use crate::backend::{auto, KktBackend};
 use crate::error::{Block, Error, Result};
 use crate::kkt;
 use crate::problem::{check_vector, Problem};
@@ -20,18 +23,25 @@ use crate::solution::{Inertia, MethodUsed, Solution, Timing, Verdict};
 #[derive(Copy, Clone, Debug, PartialEq, Eq, Default)]
 #[non_exhaustive]
 pub enum Method {
-    /// Let the analysis choose (today: dense LBLᵀ for every problem).
+    /// Let the analysis choose (the cost model of [`crate::backend::auto`]).
     #[default]
     Auto,
     /// Dense symmetric-indefinite LBLᵀ.
     Dense,
     /// Riccati recursion for stage-wise problems; needs [`Options::stages`].
     Riccati,
+    /// Schur complement (range space): Cholesky of `H` and of `A H⁻¹ Aᵀ`; falls back to
+    /// dense LBLᵀ or null-space when `H` is not positive definite.
+    Schur,
+    /// Null-space: rank-revealing QR of `Aᵀ`, reduced Hessian `ZᵀHZ`.
+    NullSpace,
+    /// Sparse LDLᵀ (fill-reducing ordering, regularized pivots, refinement).
+    Sparse,
 }
 
 impl Method {
     /// Every method name the command line accepts.
-    pub const NAMES: &'static [&'static str] = &["auto", "dense", "riccati"];
+    pub const NAMES: &'static [&'static str] = &["auto", "dense", "sparse", "schur", "nullspace", "riccati"];
 }
 
 impl FromStr for Method {
@@ -41,6 +51,9 @@ impl FromStr for Method {
             "auto" => Ok(Method::Auto),
             "dense" => Ok(Method::Dense),
             "riccati" => Ok(Method::Riccati),
+            "schur" => Ok(Method::Schur),
+            "nullspace" => Ok(Method::NullSpace),
+            "sparse" => Ok(Method::Sparse),
             other => Err(Error::InvalidOption(format!(
                 "unknown method '{other}'; known methods: {}",
                 Method::NAMES.join(", ")
@@ -48,6 +61,10 @@ impl FromStr for Method {
         }
     }
 }
+
+/// Largest KKT order for which a singular factorization is handed to the (dense)
+/// null-space rank analysis: 6000 (a dense copy of about 290 MB).
+pub const NULL_SPACE_RESCUE_MAX_DIM: usize = 6000;
 
 /// Default number of refinement corrections at most.
 pub const DEFAULT_MAX_REFINEMENT_STEPS: usize = 10;
@@ -70,6 +87,12 @@ pub struct Options {
     pub method: Method,
     /// Settings of the dense backend.
     pub dense: DenseParams,
+    /// Settings of the Schur-complement backend.
+    pub schur: SchurParams,
+    /// Settings of the null-space backend (also used for the rank analysis of singular K).
+    pub null_space: NullSpaceParams,
+    /// Settings of the sparse backend.
+    pub sparse: SparseParams,
     /// Maximum refinement corrections. Default: [`DEFAULT_MAX_REFINEMENT_STEPS`].
     pub max_refinement_steps: usize,
     /// Stop refining once the backward error is at most this. Default:
@@ -88,6 +111,9 @@ impl Default for Options {
         Options {
             method: Method::Auto,
             dense: DenseParams::default(),
+            schur: SchurParams::default(),
+            null_space: NullSpaceParams::default(),
+            sparse: SparseParams::default(),
             max_refinement_steps: DEFAULT_MAX_REFINEMENT_STEPS,
             refinement_target: DEFAULT_REFINEMENT_TARGET,
             accept_backward_error: DEFAULT_ACCEPT_BACKWARD_ERROR,
@@ -107,6 +133,7 @@ pub struct Plan {
     analyze_s: f64,
     stage_structure: Option<std::sync::Arc<crate::stagewise::StageStructure>>,
     notes: Vec<String>,
+    sparse: Option<std::sync::Arc<SparseAnalysis>>,
 }
 
 impl Plan {
@@ -127,10 +154,17 @@ impl Plan {
                     None => (MethodUsed::DenseLblt, choice.reason),
                 }
             }
-            Method::Auto => (
-                MethodUsed::DenseLblt,
-                "dense LBLᵀ is the only factorization available for this structure".to_string(),
-            ),
+            Method::Schur => (MethodUsed::Schur, "requested".to_string()),
+            Method::NullSpace => (MethodUsed::NullSpace, "requested".to_string()),
+            Method::Sparse => (MethodUsed::SparseLdlt, "requested".to_string()),
+            Method::Auto if sparse_ldlt::prefer_sparse(problem) => {
+                (MethodUsed::SparseLdlt, "sparse blocks and a large or sparse KKT matrix".to_string())
+            }
+            Method::Auto => auto::choose(problem, options),
+        };
+        let sparse = match method {
+            MethodUsed::SparseLdlt => Some(std::sync::Arc::new(SparseAnalysis::new(problem, &options.sparse)?)),
+            _ => None,
         };
         Ok(Plan {
             n: problem.n(),
@@ -141,6 +175,7 @@ impl Plan {
             analyze_s: t.elapsed().as_secs_f64(),
             stage_structure,
             notes,
+            sparse,
         })
     }
 
@@ -154,12 +189,40 @@ impl Plan {
         &self.reason
     }
 
+    /// The options this plan was made with (refinement settings are reused by
+    /// [`crate::diagnostics`]).
+    pub fn options(&self) -> &Options {
+        &self.options
+    }
+
     /// Numeric factorization of `problem` (which must have the analyzed structure).
     pub fn factor(&self, problem: &Problem) -> Result<Factorization> {
         self.check_structure(problem)?;
         let t = Instant::now();
+        let backend = self.factor_backend(problem)?;
+        let factor_s = t.elapsed().as_secs_f64();
+        let mut norm_rows = vec![0.0; kkt::dim(problem)];
+        Ok(Factorization {
+            plan: self.clone(),
+            problem: problem.clone(),
+            norm_k: kkt::norm_inf_with(problem, &mut norm_rows),
+            norm_rows,
+            backend,
+            factor_s,
+        })
+    }
+
+    /// Creates and factors the planned backend; a singular K goes to the null-space rank
+    /// analysis (which names dependent rows and solves what can be solved).
+    fn factor_backend(&self, problem: &Problem) -> Result<Box<dyn KktBackend>> {
         let mut backend: Box<dyn KktBackend> = match self.method {
-            MethodUsed::DenseLblt => Box::new(DenseLblt::new(problem, self.options.dense)),
+            MethodUsed::SparseLdlt => {
+                let analysis = match &self.sparse {
+                    Some(a) => std::sync::Arc::clone(a),
+                    None => std::sync::Arc::new(SparseAnalysis::new(problem, &self.options.sparse)?),
+                };
+                Box::new(SparseLdlt::new(analysis)?)
+            }
             MethodUsed::Riccati => match &self.stage_structure {
                 Some(st) => Box::new(crate::stagewise::RiccatiBackend::new(problem, st.clone())),
                 None => {
@@ -168,16 +231,29 @@ impl Plan {
                     ))
                 }
             },
+            _ => auto::make_backend(self.method, problem, &self.options),
         };
         backend.factor(problem)?;
-        let factor_s = t.elapsed().as_secs_f64();
-        Ok(Factorization {
-            plan: self.clone(),
-            problem: problem.clone(),
-            norm_k: kkt::norm_inf(problem),
-            backend,
-            factor_s,
-        })
+        // The rank analysis is dense (column-pivoted QR of Aᵀ): only rescue problems whose
+        // dense copy is affordable; larger singular sparse systems keep the plain
+        // `Singular` diagnosis.
+        let affordable = kkt::dim(problem) <= NULL_SPACE_RESCUE_MAX_DIM;
+        match backend.inertia() {
+            Some(i) if i.zero > 0 && backend.method() != MethodUsed::NullSpace && affordable => {
+                let mut notes: Vec<String> = backend.notes().to_vec();
+                notes.push(format!(
+                    "{} found K singular (inertia {i}); switched to the null-space method with rank analysis",
+                    backend.method()
+                ));
+                let mut ns = NullSpace::new(problem, self.options.null_space);
+                for note in notes {
+                    ns = ns.with_note(note);
+                }
+                ns.factor(problem)?;
+                Ok(Box::new(ns))
+            }
+            _ => Ok(backend),
+        }
     }
 
     fn check_structure(&self, problem: &Problem) -> Result<()> {
@@ -218,6 +294,7 @@ pub struct Factorization {
     plan: Plan,
     problem: Problem,
     norm_k: f64,
+    norm_rows: Vec<f64>,
     backend: Box<dyn KktBackend>,
     factor_s: f64,
 }
@@ -259,8 +336,16 @@ impl Factorization {
         self.plan.check_structure(problem)?;
         self.problem.update_values(problem)?;
         let t = Instant::now();
-        self.backend.factor(&self.problem)?;
-        self.norm_k = kkt::norm_inf(&self.problem);
+        if self.backend.method() == self.plan.method && self.backend.notes().is_empty() {
+            self.backend.factor(&self.problem)?;
+            if self.backend.inertia().is_some_and(|i| i.zero > 0) && self.backend.method() != MethodUsed::NullSpace {
+                self.backend = self.plan.factor_backend(&self.problem)?;
+            }
+        } else {
+            // The last factorization fell back or was rescued: start from the plan again.
+            self.backend = self.plan.factor_backend(&self.problem)?;
+        }
+        self.norm_k = kkt::norm_inf_with(&self.problem, &mut self.norm_rows);
         self.factor_s = t.elapsed().as_secs_f64();
         Ok(())
     }
@@ -272,12 +357,18 @@ impl Factorization {
         };
         let (n, m) = (self.problem.n(), self.problem.m());
         if inertia.zero > 0 {
-            return Err(Error::Singular {
-                inertia,
-                detail: singular_detail(n, m, inertia),
-            });
+            return match self.backend.singular_findings(&self.problem, &self.problem.c, &self.problem.b) {
+                Some(findings) => findings.map(|f| f.verdict),
+                None => Err(Error::Singular {
+                    inertia,
+                    detail: singular_detail(n, m, inertia),
+                }),
+            };
         }
-        if self.backend.regularized_pivots() > 0 {
+        // Forced (regularized) pivots impose signs: the inertia is evidence only when the
+        // backend confirmed it another way (sparse_ldlt: exact Schur-complement correction).
+        // solve_into also withholds the verdict when refinement then stalls.
+        if !self.backend.inertia_certified() {
             return Ok(None);
         }
         Ok(Some(if inertia == Inertia::new(n, m, 0) {
@@ -341,7 +432,18 @@ impl Factorization {
         check_vector(Block::C, c, n)?;
         check_vector(Block::B, b, m)?;
         ws.check(n, m)?;
-        let verdict = self.verdict()?;
+        let singular = self.backend.inertia().is_some_and(|i| i.zero > 0);
+        let (verdict, findings) = if singular {
+            match self.backend.singular_findings(&self.problem, c, b) {
+                Some(f) => {
+                    let f = f?;
+                    (f.verdict, Some(f))
+                }
+                None => (self.verdict()?, None),
+            }
+        } else {
+            (self.verdict()?, None)
+        };
         let t = Instant::now();
         let Workspace {
             buf, rhs, z, r, best, col, ..
@@ -358,7 +460,7 @@ impl Factorization {
             *zi = col[(i, 0)];
         }
         let (backward_error, steps) = self.refine(rhs, z, r, best, col, stack);
-        if !(backward_error <= self.plan.options.accept_backward_error) {
+        if backward_error.is_nan() || backward_error > self.plan.options.accept_backward_error {
             return Err(Error::Inaccurate {
                 backward_error,
                 steps,
@@ -383,7 +485,10 @@ impl Factorization {
         out.backward_error = backward_error;
         out.refinement_steps = steps;
         out.inertia = self.backend.inertia();
-        out.verdict = verdict;
+        // With forced pivots the verdict also needs a solve refined to machine level.
+        let regularized_but_inaccurate =
+            self.backend.regularized_pivots() > 0 && backward_error > 1e3 * f64::EPSILON;
+        out.verdict = if regularized_but_inaccurate { None } else { verdict };
         out.method = self.backend.method();
         out.timing = Timing {
             analyze_s: self.plan.analyze_s,
@@ -393,10 +498,21 @@ impl Factorization {
         out.notes.clear();
         out.notes.extend(self.plan.notes.iter().cloned());
         out.notes.extend(self.backend.notes().iter().cloned());
+        out.null_direction = None;
+        if let Some(f) = findings {
+            out.notes.extend(f.notes);
+            out.null_direction = f.null_direction;
+        }
         if backward_error > 1e3 * f64::EPSILON {
             out.notes.push(format!(
                 "backward error {backward_error:.1e} stayed above the refinement target after {steps} step(s): \
                  K is ill-conditioned, trust fewer digits"
+            ));
+        }
+        if regularized_but_inaccurate && verdict.is_some() {
+            out.notes.push(format!(
+                "verdict withheld: {} pivot(s) were regularized and refinement did not reach machine precision",
+                self.backend.regularized_pivots()
             ));
         }
         Ok(())
@@ -438,7 +554,7 @@ impl Factorization {
             kkt::residual(&self.problem, z, rhs, r);
             let next = normwise(r, self.norm_k, z, rhs);
             steps += 1;
-            if !(next < omega) {
+            if next.is_nan() || next >= omega {
                 // No progress: keep the better iterate.
                 z.copy_from_slice(best);
                 break;

@@ -4,14 +4,30 @@
 //!
 //! A backend knows nothing about builders, files or the command line.
 
+pub mod auto;
 pub mod dense_lblt;
+pub mod null_space;
+pub mod schur;
+pub mod sparse_ldlt;
 
 use faer::dyn_stack::{MemStack, StackReq};
 use faer::MatMut;
 
 use crate::error::Result;
 use crate::problem::Problem;
-use crate::solution::{Inertia, MethodUsed};
+use crate::solution::{Inertia, MethodUsed, Verdict};
+
+/// What a backend that handles singular K (rank analysis, reduced Hessian) found about one
+/// right-hand side `(c, b)`: returned by [`KktBackend::singular_findings`].
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct SingularFindings {
+    /// The verdict for this right-hand side (`None` when it cannot be certified).
+    pub verdict: Option<Verdict>,
+    /// For [`Verdict::NonUnique`]: a unit null direction of the reduced Hessian, mapped to x.
+    pub null_direction: Option<Vec<f64>>,
+    /// Remarks for the user (dropped rows, non-uniqueness).
+    pub notes: Vec<String>,
+}
 
 /// The interface every factorization backend implements.
 ///
@@ -36,18 +52,36 @@ pub trait KktBackend: Send + Sync + std::fmt::Debug {
     fn regularized_pivots(&self) -> usize {
         0
     }
+    /// True when [`inertia`](KktBackend::inertia) is the inertia of K itself: observed
+    /// without forced pivots, or confirmed another way despite them (see
+    /// `sparse_ldlt`). Default: no forced pivots.
+    fn inertia_certified(&self) -> bool {
+        self.regularized_pivots() == 0
+    }
     /// Scratch needed by [`solve_in_place`](KktBackend::solve_in_place) for `nrhs`
     /// right-hand sides.
     fn solve_scratch(&self, nrhs: usize) -> StackReq;
     /// Overwrites `rhs` (N×nrhs) with `K⁻¹·rhs`.
     fn solve_in_place(&self, rhs: MatMut<'_, f64>, stack: &mut MemStack);
-    /// Remarks from the last factorization that a user should read (copied into every
-    /// solution's notes). Default: none.
+    /// The Riccati factorization (gains, value matrices), when this backend is one.
+    fn riccati(&self) -> Option<&crate::stagewise::RiccatiBackend> {
+        None
+    }
+    /// Remarks about the last factorization a user should read (for example a fallback
+    /// taken, with the reason). Default: none.
     fn notes(&self) -> &[String] {
         &[]
     }
-    /// The Riccati factorization (gains, value matrices), when this backend is one.
-    fn riccati(&self) -> Option<&crate::stagewise::RiccatiBackend> {
+    /// For a singular K (inertia with zeros): backends that can still solve it (the
+    /// null-space backend, through the rank analysis of [`crate::diagnostics::rank`])
+    /// check the right-hand side `(c, b)` and return the verdict, or the
+    /// [`Error::Infeasible`](crate::Error::Infeasible) /
+    /// [`Error::Unbounded`](crate::Error::Unbounded) diagnosis. In that case
+    /// [`solve_in_place`](KktBackend::solve_in_place) applies a generalized inverse (minimum-norm
+    /// multipliers, minimum-norm point when it is not unique). Default: `None` (the backend
+    /// cannot solve a singular K).
+    fn singular_findings(&self, problem: &Problem, c: &[f64], b: &[f64]) -> Option<Result<SingularFindings>> {
+        let _ = (problem, c, b);
         None
     }
 }

@@ -8,8 +8,8 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
-use tangency::report::{error_json, human, solution_json};
-use tangency::{io, Error, Method, Options, Plan};
+use tangency::report::{error_json, human, solution_json, Json};
+use tangency::{diagnostics, io, Error, Method, Options, Plan};
 
 #[derive(Parser, Debug)]
 #[command(name = "tangency", version, about = "Equality-constrained quadratic programs and their KKT systems")]
@@ -25,7 +25,7 @@ enum Command {
     Solve {
         /// The problem directory.
         dir: PathBuf,
-        /// Factorization method: auto, dense or riccati.
+        /// Factorization method: auto, dense, sparse, schur, nullspace or riccati.
         #[arg(long, default_value = "auto")]
         method: String,
         /// Stage dimensions NX,NU,N for --method riccati (required with it).
@@ -37,12 +37,40 @@ enum Command {
         /// Print exactly one JSON object on stdout (whatever the outcome).
         #[arg(long)]
         json: bool,
+        /// Also report how the optimal objective moves with b and c (df/db = −y, df/dc = x).
+        #[arg(long)]
+        sensitivity: bool,
+    },
+    /// Analyze a problem directory without solving for x: sizes, symmetry, constraint rank
+    /// and dependent rows, inertia, condition estimate, predicted verdict.
+    Inspect {
+        /// The problem directory.
+        dir: PathBuf,
+        /// Print exactly one JSON object on stdout (whatever the outcome).
+        #[arg(long)]
+        json: bool,
     },
     /// Build, solve and explain a scenario of our own (a pinned spring lattice).
     Demo {
         /// Instead: a receding-horizon control loop on a two-mass chain (Riccati re-solves).
         #[arg(long)]
         control: bool,
+    },
+    /// Write a generated test problem as a problem directory.
+    ///
+    /// Families (invented scenarios for testing linear algebra, not design tools):
+    /// poisson-control: control of a 2D Poisson equation on a K×K grid, n = 2K², m = K²;
+    /// tied-lattice: a cross-braced spring lattice of K×K cells in two halves joined by tie
+    /// constraints, with supports and multipoint constraints, n = 2(K+1)(K+2), m = 5K+3.
+    Generate {
+        /// poisson-control or tied-lattice.
+        family: String,
+        /// The size parameter K.
+        #[arg(long)]
+        size: usize,
+        /// The directory to write (created if needed).
+        #[arg(long)]
+        out: PathBuf,
     },
 }
 
@@ -95,7 +123,51 @@ fn main() -> ExitCode {
             stages,
             out,
             json,
-        } => solve(&dir, &method, stages.as_deref(), out.as_deref(), json),
+            sensitivity,
+        } => solve(&dir, &method, stages.as_deref(), out.as_deref(), json, sensitivity),
+        Command::Inspect { dir, json } => inspect(&dir, json),
+        Command::Generate { family, size, out } => generate(&family, size, &out),
+    }
+}
+
+fn generate(family: &str, size: usize, out: &std::path::Path) -> ExitCode {
+    let written = family
+        .parse::<tangency::generate::Family>()
+        .and_then(|f| tangency::generate::write_family(f, size, out));
+    match written {
+        Ok(p) => {
+            println!("wrote {} (n = {}, m = {})", out.display(), p.n(), p.m());
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("tangency: {e}");
+            ExitCode::from(2)
+        }
+    }
+}
+
+fn inspect(dir: &std::path::Path, json: bool) -> ExitCode {
+    match diagnostics::inspect::inspect_dir(dir, &Options::default()) {
+        Ok(info) => {
+            if json {
+                println!("{}", info.to_json());
+            } else {
+                print!("{info}");
+            }
+            ExitCode::SUCCESS
+        }
+        Err(err) => {
+            if json {
+                let mut o = error_json(&err, None, None, None);
+                for key in ["constraint_rank", "dependent_rows", "condition_estimate"] {
+                    o.set(key, Json::Null);
+                }
+                println!("{o}");
+            } else {
+                eprintln!("tangency: invalid input: {err}");
+            }
+            ExitCode::from(exit_code(&err))
+        }
     }
 }
 
@@ -105,10 +177,13 @@ fn solve(
     stages: Option<&str>,
     out: Option<&std::path::Path>,
     json: bool,
+    sensitivity: bool,
 ) -> ExitCode {
-    let fail = |err: Error, sizes: Option<(usize, usize)>, used: Option<&str>, inertia| {
+    let fail = |err: Error, sizes: Option<(usize, usize)>, used: Option<&str>, inertia, kappa: Option<f64>| {
         if json {
-            println!("{}", error_json(&err, sizes, used, inertia));
+            let mut o = error_json(&err, sizes, used, inertia);
+            o.set("condition_estimate", kappa.filter(|k| k.is_finite()));
+            println!("{o}");
         } else {
             eprintln!("tangency: {}: {err}", if err.is_no_solution() { "no solution" } else { "invalid input" });
         }
@@ -116,7 +191,7 @@ fn solve(
     };
     let method: Method = match method.parse() {
         Ok(m) => m,
-        Err(e) => return fail(e, None, None, None),
+        Err(e) => return fail(e, None, None, None, None),
     };
     let stages: Option<tangency::stagewise::StageDims> = match (method, stages) {
         (Method::Riccati, None) => {
@@ -125,15 +200,17 @@ fn solve(
                 None,
                 None,
                 None,
+                None,
             )
         }
         (Method::Riccati, Some(s)) => match s.parse() {
             Ok(d) => Some(d),
-            Err(e) => return fail(e, None, None, None),
+            Err(e) => return fail(e, None, None, None, None),
         },
         (_, Some(_)) => {
             return fail(
                 Error::InvalidOption("--stages applies only to --method riccati".into()),
+                None,
                 None,
                 None,
                 None,
@@ -143,7 +220,7 @@ fn solve(
     };
     let problem = match io::read_problem_dir(dir) {
         Ok(p) => p,
-        Err(e) => return fail(e, None, None, None),
+        Err(e) => return fail(e, None, None, None, None),
     };
     let sizes = Some((problem.n(), problem.m()));
     let options = Options {
@@ -153,16 +230,19 @@ fn solve(
     };
     let plan = match Plan::analyze(&problem, &options) {
         Ok(p) => p,
-        Err(e) => return fail(e, sizes, None, None),
+        Err(e) => return fail(e, sizes, None, None, None),
     };
     let used = plan.method().as_str();
     let factorization = match plan.factor(&problem) {
         Ok(f) => f,
-        Err(e) => return fail(e, sizes, Some(used), None),
+        Err(e) => return fail(e, sizes, Some(used), None, None),
     };
+    // A few solves with the factors (at most diagnostics::condition::MAX_SOLVE_CALLS).
+    let condition = diagnostics::condition::estimate(&factorization);
+    let kappa = Some(condition.kappa);
     let solution = match factorization.solve() {
         Ok(s) => s,
-        Err(e) => return fail(e, sizes, Some(used), factorization.inertia()),
+        Err(e) => return fail(e, sizes, Some(used), factorization.inertia(), kappa),
     };
     if let Some(out) = out {
         let written = std::fs::create_dir_all(out)
@@ -173,13 +253,32 @@ fn solve(
             .and_then(|_| io::write_vector(out.join("x.mtx"), &solution.x))
             .and_then(|_| io::write_vector(out.join("multipliers.mtx"), &solution.y));
         if let Err(e) = written {
-            return fail(e, sizes, Some(used), solution.inertia);
+            return fail(e, sizes, Some(used), solution.inertia, kappa);
         }
     }
+    let bound = condition.forward_error_bound(solution.backward_error);
+    let finite = |v: f64| v.is_finite().then_some(v);
     if json {
-        println!("{}", solution_json(&problem, &solution));
+        let mut o = solution_json(&problem, &solution);
+        o.set("condition_estimate", finite(condition.kappa));
+        o.set("forward_error_bound", finite(bound));
+        if sensitivity {
+            let d = diagnostics::sensitivity::objective_sensitivity(&solution);
+            let mut sens = Json::object();
+            sens.set("objective_wrt_b", &d.wrt_b[..]).set("objective_wrt_c", &d.wrt_c[..]);
+            o.set("sensitivity", sens);
+        }
+        println!("{o}");
     } else {
         print!("{}", human(&problem, &solution));
+        println!(
+            "  condition   κ₁(K) ≈ {:.2e} ({} solve(s)); relative forward error ≤ {:.1e}",
+            condition.kappa, condition.solves, bound
+        );
+        if sensitivity {
+            println!("  sensitivity of the optimal objective (first order):");
+            print!("{}", diagnostics::sensitivity::objective_sensitivity(&solution).describe(20));
+        }
         if let Some(out) = out {
             println!("  written     {} and {}", out.join("x.mtx").display(), out.join("multipliers.mtx").display());
         }

@@ -29,7 +29,7 @@ struct Loaded {
     dense: bool,
 }
 
-fn read(path: &Path) -> Result<Option<Loaded>> {
+fn read(path: &Path, block: Block) -> Result<Option<Loaded>> {
     let text = match std::fs::read_to_string(path) {
         Ok(t) => t,
         Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
@@ -48,11 +48,41 @@ fn read(path: &Path) -> Result<Option<Loaded>> {
         });
     }
     let dense = header.split_whitespace().any(|w| w == "array");
-    let coo = load_coo_from_matrix_market_str::<f64>(&text).map_err(|e| Error::Parse {
-        path: path.to_path_buf(),
-        message: format!("{:?}: {}", e.kind(), e.message()),
+    let coo = load_coo_from_matrix_market_str::<f64>(&text).map_err(|e| {
+        locate_out_of_range(&text, block, path).unwrap_or_else(|| Error::Parse {
+            path: path.to_path_buf(),
+            message: format!("{:?}: {}", e.kind(), e.message()),
+        })
     })?;
     Ok(Some(Loaded { coo, dense }))
+}
+
+/// The parser reports an out-of-range coordinate without its position; find the first
+/// such entry (1-based in the file) so the error names it (0-based, like every error).
+fn locate_out_of_range(text: &str, block: Block, path: &Path) -> Option<Error> {
+    let mut lines = text.lines().map(str::trim).filter(|l| !l.is_empty() && !l.starts_with('%'));
+    let size: Vec<usize> = lines.next()?.split_whitespace().filter_map(|t| t.parse().ok()).collect();
+    let (nrows, ncols) = (*size.first()?, *size.get(1)?);
+    lines.find_map(|l| {
+        let mut it = l.split_whitespace().map(|t| t.parse::<usize>());
+        let (Some(Ok(i)), Some(Ok(j))) = (it.next(), it.next()) else { return None };
+        if i == 0 || j == 0 {
+            return Some(Error::Parse {
+                path: path.to_path_buf(),
+                message: format!("block {block}: entry ({i}, {j}) has a zero index; Matrix Market indices start at 1"),
+            });
+        }
+        (i > nrows || j > ncols).then(|| {
+            Error::IndexOutOfRange {
+                block,
+                row: i - 1,
+                col: j - 1,
+                nrows,
+                ncols,
+            }
+            .in_file(path)
+        })
+    })
 }
 
 fn vector(path: &Path, loaded: Option<Loaded>, block: Block) -> Result<Option<Vec<f64>>> {
@@ -102,7 +132,7 @@ pub fn read_problem_dir(dir: impl AsRef<Path>) -> Result<Problem> {
     let dir = dir.as_ref();
     let file = |name: &str| dir.join(name);
     let h_path = file("H.mtx");
-    let h = read(&h_path)?.ok_or_else(|| Error::Io {
+    let h = read(&h_path, Block::H)?.ok_or_else(|| Error::Io {
         path: h_path.clone(),
         source: std::io::Error::new(std::io::ErrorKind::NotFound, "H.mtx is required in a problem directory"),
     })?;
@@ -123,17 +153,17 @@ pub fn read_problem_dir(dir: impl AsRef<Path>) -> Result<Problem> {
         .in_file(&h_path));
     }
     let a_path = file("A.mtx");
-    let mut builder = match read(&a_path)? {
+    let mut builder = match read(&a_path, Block::A)? {
         None => builder,
         Some(a) if a.dense => builder.constraints_dense(dense(&a.coo).as_ref()),
         Some(a) => builder.constraints_triplets(a.coo.nrows(), a.coo.ncols(), &triplets(&a.coo)),
     };
     let c_path = file("c.mtx");
-    if let Some(c) = vector(&c_path, read(&c_path)?, Block::C)? {
+    if let Some(c) = vector(&c_path, read(&c_path, Block::C)?, Block::C)? {
         builder = builder.linear(&c);
     }
     let b_path = file("b.mtx");
-    if let Some(b) = vector(&b_path, read(&b_path)?, Block::B)? {
+    if let Some(b) = vector(&b_path, read(&b_path, Block::B)?, Block::B)? {
         builder = builder.rhs(&b);
     }
     let has_a = a_path.exists();

@@ -8,6 +8,8 @@ use faer::{Mat, MatMut};
 
 use crate::problem::Problem;
 
+pub mod sparse;
+
 /// Order of the KKT matrix, `n + m`.
 pub fn dim(problem: &Problem) -> usize {
     problem.n() + problem.m()
@@ -57,14 +59,19 @@ pub fn residual(problem: &Problem, z: &[f64], rhs: &[f64], out: &mut [f64]) {
 
 /// `‖K‖∞` (largest absolute row sum) of the original K.
 pub fn norm_inf(problem: &Problem) -> f64 {
+    norm_inf_with(problem, &mut vec![0.0f64; dim(problem)])
+}
+
+/// `‖K‖∞` using `rows` (length `n + m`) as scratch: no allocation.
+pub fn norm_inf_with(problem: &Problem, rows: &mut [f64]) -> f64 {
     let n = problem.n();
-    let mut rows = vec![0.0f64; dim(problem)];
+    rows.iter_mut().for_each(|r| *r = 0.0);
     problem.hessian().for_each(|i, _, v| rows[i] += v.abs());
     problem.constraints().for_each(|i, j, v| {
         rows[n + i] += v.abs();
         rows[j] += v.abs();
     });
-    rows.into_iter().fold(0.0, f64::max)
+    rows.iter().fold(0.0, |a, &r| a.max(r))
 }
 
 /// Symmetric Ruiz equilibration of a dense symmetric matrix, in place:
@@ -80,9 +87,9 @@ pub fn ruiz_dense(mut k: MatMut<'_, f64>, max_iter: usize) -> Vec<f64> {
     for _ in 0..max_iter {
         // Column maxima equal row maxima for a symmetric matrix; columns are contiguous.
         let mut converged = true;
-        for j in 0..dim {
+        for (j, sj) in s.iter_mut().enumerate() {
             let mx = k.rb().col(j).iter().fold(0.0f64, |a, v| a.max(v.abs()));
-            s[j] = if mx > 0.0 { 1.0 / mx.sqrt() } else { 1.0 };
+            *sj = if mx > 0.0 { 1.0 / mx.sqrt() } else { 1.0 };
             if mx > 0.0 && (mx - 1.0).abs() > 0.1 {
                 converged = false;
             }

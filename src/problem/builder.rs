@@ -339,9 +339,7 @@ fn triplets_from_faer(s: SparseColMatRef<'_, usize, f64>) -> Input {
             Some(nnz) => start + nnz[j],
             None => col_ptr[j + 1],
         };
-        for k in start..end {
-            entries.push((row_idx[k], j, s.val()[k]));
-        }
+        entries.extend((start..end).map(|k| (row_idx[k], j, s.val()[k])));
     }
     Input::Triplets {
         rows: s.nrows(),
@@ -361,7 +359,7 @@ impl Input {
 
 /// Converts row-major data into a dense matrix after checking its length.
 fn dense_from_row_major(block: Block, rows: usize, cols: usize, data: &[f64]) -> Result<Mat<f64>> {
-    let expected = rows.checked_mul(cols).unwrap_or(usize::MAX);
+    let expected = rows.saturating_mul(cols);
     if data.len() != expected {
         return Err(Error::WrongLength {
             block,

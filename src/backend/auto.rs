@@ -1,0 +1,173 @@
+//! The cost model behind [`Method::Auto`](crate::Method::Auto) for dense structure: it
+//! estimates the factorization time of dense LBLᵀ, Schur complement and null-space from
+//! their flop counts and a rate per kernel family, and picks the cheapest method that
+//! applies. A wrong guess costs time, never correctness: the Schur path falls back by
+//! itself, and every backend's singular case goes to the null-space rank analysis.
+//!
+//! | method | flops (N = n + m) | rate constant |
+//! |---|---|---|
+//! | dense LBLᵀ | `N³/3` | [`RATE_LBLT`] |
+//! | Schur | `n³/3 + n²m + nm² + m³/3` | [`RATE_CHOLESKY`] |
+//! | null-space | QR of Aᵀ `2nm² − 2m³/3`, `Z` `4nm(n − m)`, `ZᵀHZ` `2n²(n − m) + n(n − m)²`, reduced `(n − m)³/3` | [`RATE_PIVOTED_QR`], [`RATE_GEMM`] |
+//!
+//! Applicability: Schur needs `H ≻ 0`, which cannot be known before factoring; auto tries
+//! it only when every `H_ii > 0` (necessary for `H ≻ 0`) and `m ≤ n`, and charges the
+//! fallback risk nothing (the failed Cholesky usually stops early on an indefinite `H`,
+//! but may not: that case costs up to `n³/3` extra flops). With `m > n` K is singular for
+//! certain, so auto goes straight to the null-space method, which handles it.
+//!
+//! The rates were fitted to the `structure` benchmark (`cargo bench --bench structure`) on
+//! the 2-core development machine; they only need to be right in their ratios.
+
+use crate::backend::dense_lblt::DenseLblt;
+use crate::backend::null_space::NullSpace;
+use crate::backend::schur::{self, Schur};
+use crate::backend::KktBackend;
+use crate::problem::Problem;
+use crate::solution::MethodUsed;
+use crate::solver::Options;
+
+/// Effective rate (flop/s) of faer's dense Bunch–Kaufman LBLᵀ.
+pub const RATE_LBLT: f64 = 25e9;
+/// Effective rate (flop/s) of the Cholesky / triangular-solve / SYRK kernels of the Schur path.
+pub const RATE_CHOLESKY: f64 = 50e9;
+/// Effective rate (flop/s) of faer's column-pivoted QR (partly matrix-vector bound).
+pub const RATE_PIVOTED_QR: f64 = 10e9;
+/// Effective rate (flop/s) of matrix-matrix products (forming `Z` and `ZᵀHZ`).
+pub const RATE_GEMM: f64 = 50e9;
+
+/// Estimated factorization seconds of each dense method for an n×n H and m×n A.
+#[derive(Copy, Clone, Debug, PartialEq)]
+pub struct CostEstimate {
+    /// Dense LBLᵀ.
+    pub dense: f64,
+    /// Schur complement (when `H ≻ 0`).
+    pub schur: f64,
+    /// Null-space.
+    pub null_space: f64,
+}
+
+/// The cost model's estimates for sizes `n`, `m` (see the [module docs](self)).
+///
+/// ```
+/// let e = tangency::backend::auto::estimate(1000, 900);
+/// assert!(e.null_space < e.dense);
+/// ```
+pub fn estimate(n: usize, m: usize) -> CostEstimate {
+    let (nf, mf) = (n as f64, m as f64);
+    let big_n = nf + mf;
+    let dense = big_n.powi(3) / 3.0 / RATE_LBLT;
+    let schur = schur::flops(n, m) / RATE_CHOLESKY;
+    let k = (nf - mf).max(0.0);
+    let mq = mf.min(nf);
+    let qr = (2.0 * nf * mq * mq - 2.0 * mq.powi(3) / 3.0).max(0.0);
+    let gemm = 4.0 * nf * mq * k + 2.0 * nf * nf * k + nf * k * k + k.powi(3) / 3.0;
+    let null_space = qr / RATE_PIVOTED_QR + gemm / RATE_GEMM;
+    CostEstimate {
+        dense,
+        schur,
+        null_space,
+    }
+}
+
+/// The method the cost model picks for sizes `n`, `m`, given whether every `H_ii > 0`
+/// (the cheap necessary condition for `H ≻ 0` that admits the Schur path).
+///
+/// ```
+/// use tangency::{backend::auto::choose_by_shape, MethodUsed};
+/// assert_eq!(choose_by_shape(10, 20, true), MethodUsed::NullSpace); // m > n
+/// ```
+pub fn choose_by_shape(n: usize, m: usize, h_diagonal_positive: bool) -> MethodUsed {
+    if m > n {
+        return MethodUsed::NullSpace;
+    }
+    let e = estimate(n, m);
+    if h_diagonal_positive && e.schur <= e.dense.min(e.null_space) {
+        MethodUsed::Schur
+    } else if e.null_space < e.dense {
+        MethodUsed::NullSpace
+    } else {
+        MethodUsed::DenseLblt
+    }
+}
+
+fn h_diagonal_positive(problem: &Problem) -> bool {
+    let n = problem.n();
+    let mut diag = vec![0.0f64; n];
+    problem.hessian().for_each(|i, j, v| {
+        if i == j {
+            diag[i] += v;
+        }
+    });
+    diag.iter().all(|d| *d > 0.0)
+}
+
+fn describe(e: &CostEstimate) -> String {
+    format!(
+        "estimated factor time: dense LBLᵀ {:.2e} s, Schur {:.2e} s, null-space {:.2e} s",
+        e.dense, e.schur, e.null_space
+    )
+}
+
+/// Picks the method for dense structure, with the reason in words.
+///
+/// ```
+/// use tangency::{MethodUsed, ProblemBuilder, Triangle};
+/// let p = ProblemBuilder::new()
+///     .hessian_row_major(2, &[2.0, 0.0, 0.0, 2.0], Triangle::Full)
+///     .constraints_row_major(1, 2, &[1.0, 1.0])
+///     .rhs(&[1.0])
+///     .build()?;
+/// let (method, why) = tangency::backend::auto::choose(&p, &Default::default());
+/// assert!(matches!(method, MethodUsed::Schur | MethodUsed::NullSpace | MethodUsed::DenseLblt));
+/// assert!(!why.is_empty());
+/// # Ok::<(), tangency::Error>(())
+/// ```
+pub fn choose(problem: &Problem, options: &Options) -> (MethodUsed, String) {
+    let _ = options;
+    let (n, m) = (problem.n(), problem.m());
+    if m > n {
+        return (
+            MethodUsed::NullSpace,
+            format!("m = {m} > n = {n}: the constraints are dependent for certain, the null-space rank analysis handles them directly"),
+        );
+    }
+    let e = estimate(n, m);
+    if choose_by_shape(n, m, h_diagonal_positive(problem)) == MethodUsed::Schur {
+        return (
+            MethodUsed::Schur,
+            format!("H has a positive diagonal (may be positive definite) and the Schur complement is cheapest; {}", describe(&e)),
+        );
+    }
+    let (method, why) = choose_without_schur(problem);
+    let pre = if h_diagonal_positive(problem) {
+        "cheapest by the cost model"
+    } else {
+        "H has a non-positive diagonal entry, so it is not positive definite (no Schur complement)"
+    };
+    (method, format!("{pre}; {why}"))
+}
+
+/// The cheaper of dense LBLᵀ and null-space (the fallbacks of the Schur path).
+pub fn choose_without_schur(problem: &Problem) -> (MethodUsed, String) {
+    let (n, m) = (problem.n(), problem.m());
+    if m > n {
+        return (MethodUsed::NullSpace, format!("m = {m} > n = {n}"));
+    }
+    let e = estimate(n, m);
+    if choose_by_shape(n, m, false) == MethodUsed::NullSpace {
+        (MethodUsed::NullSpace, describe(&e))
+    } else {
+        (MethodUsed::DenseLblt, describe(&e))
+    }
+}
+
+/// Creates (without factoring) the backend for `method`.
+pub fn make_backend(method: MethodUsed, problem: &Problem, options: &Options) -> Box<dyn KktBackend> {
+    match method {
+        MethodUsed::Schur => Box::new(Schur::new(problem, options)),
+        MethodUsed::NullSpace => Box::new(NullSpace::new(problem, options.null_space)),
+        // Dense LBLᵀ, and the default for methods this module does not build.
+        _ => Box::new(DenseLblt::new(problem, options.dense)),
+    }
+}

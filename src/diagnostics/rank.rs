@@ -1,0 +1,375 @@
+//! Rank and consistency of the equality constraints `Ax = b`.
+//!
+//! The analysis is a column-pivoted (Businger–Golub) Householder QR of `Aᵀ` (faer
+//! `col_pivoting::qr`): `Aᵀ P = Q R`, `Q` orthogonal n×n, `R` upper trapezoidal with
+//! non-increasing `|R_kk|`. Column `k` of `Aᵀ P` is row `order[k]` of `A`.
+//!
+//! **Rank tolerance.** The numerical rank is the number of diagonal entries with
+//! `|R_kk| > τ`, `τ = factor · max(m, n) · ε · |R_00|` (default `factor = 1`), the same
+//! relative threshold `numpy.linalg.matrix_rank` applies to singular values (common practice,
+//! here applied to the diagonal of a rank-revealing QR; pivoted QR reveals the rank in
+//! practice, although pathological matrices such as Kahan's exist: Golub & Van Loan,
+//! *Matrix Computations*, 4th ed., §5.4.2).
+//!
+//! **Dependent rows.** With `R = [R₁₁ R₁₂; 0 R₂₂]` (`R₁₁` of order `r` = rank), the
+//! columns of `C = R₁₁⁻¹R₁₂` give every dependent row as a combination of the independent
+//! ones: row `order[r + k]` = `Σᵢ C[i, k] · row order[i]` (exact up to `‖R₂₂‖`).
+//!
+//! **Consistency.** The same combination must hold for `b`: the gap
+//! `b_dep − Σᵢ C[i,k]·b_i` is accepted when `|gap| ≤ tol · (|b_dep| + Σᵢ |C[i,k]|·|b_i|)`
+//! plus an absolute floor `tol · ‖b‖∞`, default `tol = 1e-9` ([`DEFAULT_CONSISTENCY_TOLERANCE`]).
+//!
+//! ```
+//! use tangency::diagnostics::rank::RankAnalysis;
+//! // row 2 = row 0 + row 1
+//! let a = faer::mat![[1.0, 0.0, 0.0], [0.0, 1.0, 0.0], [1.0, 1.0, 0.0]];
+//! let r = RankAnalysis::new(a.as_ref(), 1.0);
+//! assert_eq!(r.rank(), 2);
+//! let deps = r.dependencies();
+//! assert_eq!(deps.len(), 1);
+//! // whichever row the pivoting leaves out is written in terms of the other two
+//! assert_eq!(deps[0].terms.len(), 2);
+//! assert!(r.check_rhs(&[1.0, 2.0, 3.0], 1e-9).is_ok());
+//! assert!(r.check_rhs(&[1.0, 2.0, 4.0], 1e-9).is_err());
+//! ```
+
+use std::fmt;
+
+use faer::dyn_stack::{MemBuffer, MemStack};
+use faer::linalg::householder;
+use faer::linalg::triangular_solve;
+use faer::{Conj, Mat, MatMut, MatRef, Par};
+
+use crate::error::Error;
+
+/// Default factor in the rank tolerance `τ = factor · max(m, n) · ε · |R_00|`.
+pub const DEFAULT_RANK_TOLERANCE_FACTOR: f64 = 1.0;
+/// Default relative tolerance of the consistency check of `b` on dependent rows.
+pub const DEFAULT_CONSISTENCY_TOLERANCE: f64 = 1e-9;
+
+/// One dependent constraint row, written as a combination of independent ones.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Dependency {
+    /// The dependent row (0-based).
+    pub row: usize,
+    /// `(row, coefficient)` pairs with `row_dep = Σ coefficient · row` (0-based rows;
+    /// coefficients below `1e-12` times the largest are left out; empty for a zero row).
+    pub terms: Vec<(usize, f64)>,
+}
+
+fn fmt_coef(v: f64) -> String {
+    let s = format!("{:.6}", v.abs());
+    let s = s.trim_end_matches('0');
+    let s = if s.ends_with('.') { format!("{s}0") } else { s.to_string() };
+    s
+}
+
+impl fmt::Display for Dependency {
+    /// `row 7 = 1.0·row 2 + 1.0·row 5` (0-based rows).
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "row {} = ", self.row)?;
+        if self.terms.is_empty() {
+            return f.write_str("0 (an all-zero row)");
+        }
+        for (k, (row, coef)) in self.terms.iter().enumerate() {
+            let sign = if *coef < 0.0 { "−" } else { "+" };
+            if k == 0 {
+                if *coef < 0.0 {
+                    f.write_str("−")?;
+                }
+            } else {
+                write!(f, " {sign} ")?;
+            }
+            write!(f, "{}·row {row}", fmt_coef(*coef))?;
+        }
+        Ok(())
+    }
+}
+
+/// The outcome of checking `b` against one dependency.
+#[derive(Clone, Debug, PartialEq)]
+pub struct RhsCheck {
+    /// The dependency.
+    pub dependency: Dependency,
+    /// `b_dep − Σ coef · b_i`.
+    pub gap: f64,
+    /// The tolerance the gap was compared with.
+    pub tolerance: f64,
+}
+
+impl RhsCheck {
+    /// Whether the gap is within tolerance (the row is redundant, not contradictory).
+    pub fn consistent(&self) -> bool {
+        self.gap.abs() <= self.tolerance
+    }
+}
+
+/// Column-pivoted QR of `Aᵀ` with the rank decision: see the [module docs](self).
+#[derive(Clone, Debug)]
+pub struct RankAnalysis {
+    m: usize,
+    n: usize,
+    rank: usize,
+    threshold: f64,
+    order: Vec<usize>,
+    q_basis: Mat<f64>,
+    q_coeff: Mat<f64>,
+    r: Mat<f64>,
+    comb: Mat<f64>,
+}
+
+impl RankAnalysis {
+    /// Analyzes a dense `A` (m×n). `factor` scales the rank tolerance (use
+    /// [`DEFAULT_RANK_TOLERANCE_FACTOR`]).
+    pub fn new(a: MatRef<'_, f64>, factor: f64) -> Self {
+        let (m, n) = (a.nrows(), a.ncols());
+        let at = a.transpose().to_owned();
+        if m == 0 || n == 0 {
+            return RankAnalysis {
+                m,
+                n,
+                rank: 0,
+                threshold: 0.0,
+                order: (0..m).collect(),
+                q_basis: Mat::zeros(n, 0),
+                q_coeff: Mat::zeros(1, 0),
+                r: Mat::zeros(0, m),
+                comb: Mat::zeros(0, m),
+            };
+        }
+        let qr = at.col_piv_qr();
+        let (fwd, _) = qr.P().arrays();
+        let order: Vec<usize> = fwd.to_vec();
+        let size = m.min(n);
+        let r = qr.R().get(..size, ..).to_owned();
+        let r00 = r[(0, 0)].abs();
+        let threshold = factor * (m.max(n) as f64) * f64::EPSILON * r00;
+        let mut rank = 0;
+        while rank < size && r[(rank, rank)].abs() > threshold {
+            rank += 1;
+        }
+        // C = R11⁻¹ R12: dependent rows in terms of independent ones.
+        let mut comb = r.get(..rank, rank..).to_owned();
+        if rank > 0 && comb.ncols() > 0 {
+            triangular_solve::solve_upper_triangular_in_place(r.get(..rank, ..rank), comb.as_mut(), Par::Seq);
+        }
+        RankAnalysis {
+            m,
+            n,
+            rank,
+            threshold,
+            order,
+            q_basis: qr.Q_basis().to_owned(),
+            q_coeff: qr.Q_coeff().to_owned(),
+            r,
+            comb,
+        }
+    }
+
+    /// Numerical rank of `A`.
+    pub fn rank(&self) -> usize {
+        self.rank
+    }
+
+    /// Rows of `A` (m) and columns (n).
+    pub fn shape(&self) -> (usize, usize) {
+        (self.m, self.n)
+    }
+
+    /// The rank threshold `τ` used on `|R_kk|`.
+    pub fn threshold(&self) -> f64 {
+        self.threshold
+    }
+
+    /// Row order chosen by the pivoting: the first [`rank`](Self::rank) rows are the
+    /// independent ones kept, the others are dependent.
+    pub fn order(&self) -> &[usize] {
+        &self.order
+    }
+
+    /// The factor `R` (min(m,n) × m, columns in [`order`](Self::order)).
+    pub fn r(&self) -> MatRef<'_, f64> {
+        self.r.as_ref()
+    }
+
+    /// `C = R₁₁⁻¹R₁₂` (rank × (m − rank)): column k gives dependent row `order[rank + k]`.
+    pub fn combination(&self) -> MatRef<'_, f64> {
+        self.comb.as_ref()
+    }
+
+    /// The rows found dependent (0-based, in pivot order), dropped by the solvers.
+    pub fn dependent_rows(&self) -> Vec<usize> {
+        self.order[self.rank..].to_vec()
+    }
+
+    /// Every dependent row with its combination.
+    pub fn dependencies(&self) -> Vec<Dependency> {
+        (0..self.m - self.rank)
+            .map(|k| {
+                let col = self.comb.col(k);
+                let big = col.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+                let mut terms: Vec<(usize, f64)> = (0..self.rank)
+                    .filter(|&i| col[i].abs() > 1e-12 * big)
+                    .map(|i| (self.order[i], col[i]))
+                    .collect();
+                terms.sort_by_key(|t| t.0);
+                Dependency {
+                    row: self.order[self.rank + k],
+                    terms,
+                }
+            })
+            .collect()
+    }
+
+    /// Checks `b` against every dependency (see the [module docs](self) for the test);
+    /// `Err(Error::Infeasible)` naming every contradiction, largest gap first.
+    pub fn check_rhs(&self, b: &[f64], tol: f64) -> Result<Vec<RhsCheck>, Error> {
+        let bmax = b.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+        let mut checks = Vec::new();
+        for (k, dep) in self.dependencies().into_iter().enumerate() {
+            let col = self.comb.col(k);
+            let mut combo = 0.0;
+            let mut scale = b[dep.row].abs();
+            for i in 0..self.rank {
+                let bi = b[self.order[i]];
+                combo += col[i] * bi;
+                scale += (col[i] * bi).abs();
+            }
+            checks.push(RhsCheck {
+                gap: b[dep.row] - combo,
+                tolerance: tol * (scale + bmax),
+                dependency: dep,
+            });
+        }
+        let mut bad: Vec<&RhsCheck> = checks.iter().filter(|c| !c.consistent()).collect();
+        if bad.is_empty() {
+            return Ok(checks);
+        }
+        bad.sort_by(|x, y| y.gap.abs().total_cmp(&x.gap.abs()));
+        let worst = bad[0];
+        let detail = bad
+            .iter()
+            .map(|c| {
+                let d = &c.dependency;
+                let combo: f64 = d.terms.iter().map(|(i, a)| a * b[*i]).sum();
+                format!(
+                    "{d}, but b[{}] = {} while the same combination of b gives {} (contradiction {:.3e})",
+                    d.row,
+                    b[d.row],
+                    combo,
+                    c.gap.abs()
+                )
+            })
+            .collect::<Vec<_>>()
+            .join("; ");
+        let mut rows = vec![worst.dependency.row];
+        rows.extend(worst.dependency.terms.iter().map(|t| t.0));
+        Err(Error::Infeasible {
+            rows,
+            gap: worst.gap.abs(),
+            detail: format!("rows are 0-based: {detail}"),
+        })
+    }
+
+    /// Applies `Q` (n×n) on the left of `mat` (n×k) in place.
+    pub fn apply_q(&self, mat: MatMut<'_, f64>, par: Par) {
+        self.apply(mat, par, false)
+    }
+
+    /// Applies `Qᵀ` on the left of `mat` (n×k) in place.
+    pub fn apply_qt(&self, mat: MatMut<'_, f64>, par: Par) {
+        self.apply(mat, par, true)
+    }
+
+    fn apply(&self, mat: MatMut<'_, f64>, par: Par, transpose: bool) {
+        if self.q_basis.ncols() == 0 {
+            return;
+        }
+        let bs = self.q_coeff.nrows();
+        let k = mat.ncols();
+        if transpose {
+            let req = householder::apply_block_householder_sequence_transpose_on_the_left_in_place_scratch::<f64>(
+                self.n, bs, k,
+            );
+            let mut buf = MemBuffer::new(req);
+            householder::apply_block_householder_sequence_transpose_on_the_left_in_place_with_conj(
+                self.q_basis.as_ref(),
+                self.q_coeff.as_ref(),
+                Conj::No,
+                mat,
+                par,
+                MemStack::new(&mut buf),
+            );
+        } else {
+            let req =
+                householder::apply_block_householder_sequence_on_the_left_in_place_scratch::<f64>(self.n, bs, k);
+            let mut buf = MemBuffer::new(req);
+            householder::apply_block_householder_sequence_on_the_left_in_place_with_conj(
+                self.q_basis.as_ref(),
+                self.q_coeff.as_ref(),
+                Conj::No,
+                mat,
+                par,
+                MemStack::new(&mut buf),
+            );
+        }
+    }
+
+    /// An orthonormal basis `Z` (n × (n − rank)) of the null space of `A`: the last
+    /// columns of `Q`.
+    pub fn null_basis(&self, par: Par) -> Mat<f64> {
+        let (n, r) = (self.n, self.rank);
+        let mut z = Mat::zeros(n, n - r);
+        for j in 0..n - r {
+            z[(r + j, j)] = 1.0;
+        }
+        self.apply_q(z.as_mut(), par);
+        z
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn names_a_sum_of_two_rows() {
+        // row 3 = row 0 + row 2, rows 0..2 independent
+        let a = faer::mat![
+            [1.0, 2.0, 0.0, 1.0],
+            [0.0, 1.0, 3.0, 0.0],
+            [2.0, 0.0, 1.0, 1.0],
+            [3.0, 2.0, 1.0, 2.0],
+        ];
+        let r = RankAnalysis::new(a.as_ref(), 1.0);
+        assert_eq!(r.rank(), 3);
+        let d = &r.dependencies()[0];
+        // Reconstruct the dependent row from the reported combination.
+        for j in 0..4 {
+            let s: f64 = d.terms.iter().map(|(i, c)| c * a[(*i, j)]).sum();
+            assert!((s - a[(d.row, j)]).abs() < 1e-12, "{d}");
+        }
+        let z = r.null_basis(Par::Seq);
+        assert_eq!(z.ncols(), 1);
+        let az = &a * &z;
+        assert!(az.norm_max() < 1e-12);
+        assert!(r.check_rhs(&[1.0, 1.0, 1.0, 2.0], 1e-9).is_ok());
+        match r.check_rhs(&[1.0, 1.0, 1.0, 2.5], 1e-9) {
+            Err(Error::Infeasible { gap, rows, .. }) => {
+                // every coefficient of the combination is ±1, so the gap is the change of b[3]
+                assert!((gap - 0.5).abs() < 1e-12, "{gap}");
+                assert_eq!(rows.len(), 3);
+            }
+            other => panic!("{other:?}"),
+        }
+    }
+
+    #[test]
+    fn display_reads_like_an_equation() {
+        let d = Dependency {
+            row: 7,
+            terms: vec![(2, 1.0), (5, -0.5)],
+        };
+        assert_eq!(d.to_string(), "row 7 = 1.0·row 2 − 0.5·row 5");
+    }
+}
