@@ -195,6 +195,39 @@ pub enum Error {
         /// Acceptance level (`Options::accept_backward_error`).
         limit: f64,
     },
+    /// Invalid data for one stage of a horizon (stage-wise) problem; `stage` is `N` for the
+    /// terminal blocks and the initial state. Recover by correcting that block.
+    #[error("horizon stage {stage}, block {block}: {detail}")]
+    Stage {
+        /// Stage index (0-based; `N` for terminal data).
+        stage: usize,
+        /// The offending block.
+        block: crate::stagewise::StageBlock,
+        /// Row of the offending entry (0-based), when there is one.
+        row: Option<usize>,
+        /// Column of the offending entry (0-based), when there is one.
+        col: Option<usize>,
+        /// What is wrong.
+        detail: String,
+    },
+    /// A general problem does not have the stage structure that `--method riccati --stages`
+    /// declares. Recover by reordering the variables and rows (see [`crate::stagewise`]) or by
+    /// choosing another method.
+    #[error("not stage-structured for --stages {dims}: entry {block}[{row},{col}] = {value:e} (0-based) {detail}")]
+    NotStageStructured {
+        /// The declared dimensions.
+        dims: crate::stagewise::StageDims,
+        /// `H` or `A`.
+        block: Block,
+        /// Row of the first offending entry (0-based).
+        row: usize,
+        /// Column of the first offending entry (0-based).
+        col: usize,
+        /// Its value.
+        value: f64,
+        /// Why it lies outside the structure.
+        detail: String,
+    },
     /// The constraints contradict each other: some row of `A` is a linear combination of
     /// others but its `b` entry is not the same combination of theirs. Recover by fixing
     /// `b` (or removing one of the named rows).
@@ -263,6 +296,7 @@ impl Error {
             | Error::IndexOutOfRange { block, .. }
             | Error::WrongLength { block, .. } => Some(*block),
             Error::NotSymmetric { .. } | Error::WrongTriangle { .. } => Some(Block::H),
+            Error::NotStageStructured { block, .. } => Some(*block),
             Error::InFile { source, .. } => source.block(),
             _ => None,
         }

@@ -78,10 +78,13 @@
 //!
 //! ## Current state
 //!
-//! Implemented: dense LBLᵀ with equilibration, inertia, verdict, refinement; Schur-complement
-//! and null-space methods with an auto cost model; rank analysis that names dependent
-//! constraints; builders; Matrix Market I/O; the `tangency` command line. Not yet: sparse
-//! LDLᵀ, condition estimates and sensitivities, iterative methods. The Schur and
+//! Implemented: dense LBLᵀ with equilibration, inertia, verdict, refinement; sparse LDLᵀ
+//! with a fill-reducing ordering, regularized pivots and allocation-free refactorization;
+//! Schur-complement and null-space methods with an auto cost model; rank analysis that names
+//! dependent constraints; condition estimates, backward errors and sensitivities
+//! ([`diagnostics`]); stage-wise (optimal control) problems with a typed horizon builder and
+//! the Riccati-recursion backend ([`stagewise`]); builders; Matrix Market I/O; the
+//! `tangency` command line. Not yet: iterative methods (MINRES, projected CG). The Schur and
 //! null-space methods and the rank analysis work on dense copies of `H` and `A`.
 #![deny(missing_docs)]
 
@@ -96,6 +99,7 @@ pub mod problem;
 pub mod report;
 pub mod solution;
 pub mod solver;
+pub mod stagewise;
 
 pub use backend::dense_lblt::{DenseParams, Pivoting};
 pub use error::{Block, Error, Result};

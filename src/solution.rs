@@ -81,6 +81,8 @@ impl fmt::Display for Verdict {
 pub enum MethodUsed {
     /// Dense symmetric-indefinite LBLᵀ (Bunch–Kaufman family).
     DenseLblt,
+    /// Riccati recursion over the stages of a stage-wise (optimal control) problem.
+    Riccati,
     /// Range-space method: Cholesky of `H`, then of the Schur complement `A H⁻¹ Aᵀ`.
     Schur,
     /// Null-space method: rank-revealing QR of `Aᵀ`, reduced Hessian `ZᵀHZ`.
@@ -94,6 +96,7 @@ impl MethodUsed {
     pub fn as_str(self) -> &'static str {
         match self {
             MethodUsed::DenseLblt => "dense",
+            MethodUsed::Riccati => "riccati",
             MethodUsed::Schur => "schur",
             MethodUsed::NullSpace => "nullspace",
             MethodUsed::SparseLdlt => "sparse",

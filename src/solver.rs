@@ -28,6 +28,8 @@ pub enum Method {
     Auto,
     /// Dense symmetric-indefinite LBLᵀ.
     Dense,
+    /// Riccati recursion for stage-wise problems; needs [`Options::stages`].
+    Riccati,
     /// Schur complement (range space): Cholesky of `H` and of `A H⁻¹ Aᵀ`; falls back to
     /// dense LBLᵀ or null-space when `H` is not positive definite.
     Schur,
@@ -39,7 +41,7 @@ pub enum Method {
 
 impl Method {
     /// Every method name the command line accepts.
-    pub const NAMES: &'static [&'static str] = &["auto", "dense", "sparse", "schur", "nullspace"];
+    pub const NAMES: &'static [&'static str] = &["auto", "dense", "sparse", "schur", "nullspace", "riccati"];
 }
 
 impl FromStr for Method {
@@ -48,6 +50,7 @@ impl FromStr for Method {
         match s {
             "auto" => Ok(Method::Auto),
             "dense" => Ok(Method::Dense),
+            "riccati" => Ok(Method::Riccati),
             "schur" => Ok(Method::Schur),
             "nullspace" => Ok(Method::NullSpace),
             "sparse" => Ok(Method::Sparse),
@@ -98,6 +101,9 @@ pub struct Options {
     /// Refuse solutions whose backward error stays above this. Default:
     /// [`DEFAULT_ACCEPT_BACKWARD_ERROR`].
     pub accept_backward_error: f64,
+    /// Stage dimensions `(nx, nu, N)` for [`Method::Riccati`] (layout in
+    /// [`crate::stagewise`]). Default: `None`.
+    pub stages: Option<crate::stagewise::StageDims>,
 }
 
 impl Default for Options {
@@ -111,6 +117,7 @@ impl Default for Options {
             max_refinement_steps: DEFAULT_MAX_REFINEMENT_STEPS,
             refinement_target: DEFAULT_REFINEMENT_TARGET,
             accept_backward_error: DEFAULT_ACCEPT_BACKWARD_ERROR,
+            stages: None,
         }
     }
 }
@@ -124,6 +131,8 @@ pub struct Plan {
     reason: String,
     options: Options,
     analyze_s: f64,
+    stage_structure: Option<std::sync::Arc<crate::stagewise::StageStructure>>,
+    notes: Vec<String>,
     sparse: Option<std::sync::Arc<SparseAnalysis>>,
 }
 
@@ -131,8 +140,20 @@ impl Plan {
     /// Analyzes the structure of `problem` and picks a method.
     pub fn analyze(problem: &Problem, options: &Options) -> Result<Plan> {
         let t = Instant::now();
+        let (mut stage_structure, mut notes) = (None, Vec::new());
         let (method, reason) = match options.method {
             Method::Dense => (MethodUsed::DenseLblt, "requested".to_string()),
+            Method::Riccati => {
+                let choice = crate::stagewise::analyze(problem, options.stages)?;
+                notes = choice.notes;
+                match choice.structure {
+                    Some(st) => {
+                        stage_structure = Some(st);
+                        (MethodUsed::Riccati, choice.reason)
+                    }
+                    None => (MethodUsed::DenseLblt, choice.reason),
+                }
+            }
             Method::Schur => (MethodUsed::Schur, "requested".to_string()),
             Method::NullSpace => (MethodUsed::NullSpace, "requested".to_string()),
             Method::Sparse => (MethodUsed::SparseLdlt, "requested".to_string()),
@@ -152,6 +173,8 @@ impl Plan {
             reason,
             options: *options,
             analyze_s: t.elapsed().as_secs_f64(),
+            stage_structure,
+            notes,
             sparse,
         })
     }
@@ -200,6 +223,14 @@ impl Plan {
                 };
                 Box::new(SparseLdlt::new(analysis)?)
             }
+            MethodUsed::Riccati => match &self.stage_structure {
+                Some(st) => Box::new(crate::stagewise::RiccatiBackend::new(problem, st.clone())),
+                None => {
+                    return Err(Error::InvalidOption(
+                        "the Riccati plan has no stage structure".to_string(),
+                    ))
+                }
+            },
             _ => auto::make_backend(self.method, problem, &self.options),
         };
         backend.factor(problem)?;
@@ -465,6 +496,7 @@ impl Factorization {
             solve_s: t.elapsed().as_secs_f64(),
         };
         out.notes.clear();
+        out.notes.extend(self.plan.notes.iter().cloned());
         out.notes.extend(self.backend.notes().iter().cloned());
         out.null_direction = None;
         if let Some(f) = findings {

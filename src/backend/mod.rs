@@ -63,6 +63,10 @@ pub trait KktBackend: Send + Sync + std::fmt::Debug {
     fn solve_scratch(&self, nrhs: usize) -> StackReq;
     /// Overwrites `rhs` (N×nrhs) with `K⁻¹·rhs`.
     fn solve_in_place(&self, rhs: MatMut<'_, f64>, stack: &mut MemStack);
+    /// The Riccati factorization (gains, value matrices), when this backend is one.
+    fn riccati(&self) -> Option<&crate::stagewise::RiccatiBackend> {
+        None
+    }
     /// Remarks about the last factorization a user should read (for example a fallback
     /// taken, with the reason). Default: none.
     fn notes(&self) -> &[String] {

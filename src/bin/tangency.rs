@@ -26,10 +26,13 @@ enum Command {
         /// The problem directory.
         dir: PathBuf,
         /// Factorization method: auto, dense (LBLᵀ), sparse (regularized sparse LDLᵀ), schur
-        /// (Cholesky of H and A H⁻¹ Aᵀ, convex problems) or nullspace (QR of Aᵀ, reduced
-        /// Hessian).
+        /// (Cholesky of H and A H⁻¹ Aᵀ, convex problems), nullspace (QR of Aᵀ, reduced
+        /// Hessian) or riccati (stage-wise recursion; needs --stages).
         #[arg(long, default_value = "auto")]
         method: String,
+        /// Stage dimensions NX,NU,N for --method riccati (required with it).
+        #[arg(long)]
+        stages: Option<String>,
         /// Write x.mtx and multipliers.mtx into this directory.
         #[arg(long)]
         out: Option<PathBuf>,
@@ -50,7 +53,11 @@ enum Command {
         json: bool,
     },
     /// Build, solve and explain a scenario of our own (a pinned spring lattice).
-    Demo,
+    Demo {
+        /// Instead: a receding-horizon control loop on a two-mass chain (Riccati re-solves).
+        #[arg(long)]
+        control: bool,
+    },
     /// Write a generated test problem as a problem directory.
     ///
     /// Families (invented scenarios for testing linear algebra, not design tools):
@@ -98,7 +105,11 @@ fn main() -> ExitCode {
         }
     };
     match cli.command {
-        Command::Demo => match tangency::demo::run() {
+        Command::Demo { control } => match if control {
+            tangency::stagewise::demo::run()
+        } else {
+            tangency::demo::run()
+        } {
             Ok(text) => {
                 print!("{text}");
                 ExitCode::SUCCESS
@@ -111,10 +122,11 @@ fn main() -> ExitCode {
         Command::Solve {
             dir,
             method,
+            stages,
             out,
             json,
             sensitivity,
-        } => solve(&dir, &method, out.as_deref(), json, sensitivity),
+        } => solve(&dir, &method, stages.as_deref(), out.as_deref(), json, sensitivity),
         Command::Inspect { dir, json } => inspect(&dir, json),
         Command::Generate { family, size, out } => generate(&family, size, &out),
     }
@@ -161,7 +173,14 @@ fn inspect(dir: &std::path::Path, json: bool) -> ExitCode {
     }
 }
 
-fn solve(dir: &std::path::Path, method: &str, out: Option<&std::path::Path>, json: bool, sensitivity: bool) -> ExitCode {
+fn solve(
+    dir: &std::path::Path,
+    method: &str,
+    stages: Option<&str>,
+    out: Option<&std::path::Path>,
+    json: bool,
+    sensitivity: bool,
+) -> ExitCode {
     let fail = |err: Error, sizes: Option<(usize, usize)>, used: Option<&str>, inertia, kappa: Option<f64>| {
         if json {
             let mut o = error_json(&err, sizes, used, inertia);
@@ -176,6 +195,31 @@ fn solve(dir: &std::path::Path, method: &str, out: Option<&std::path::Path>, jso
         Ok(m) => m,
         Err(e) => return fail(e, None, None, None, None),
     };
+    let stages: Option<tangency::stagewise::StageDims> = match (method, stages) {
+        (Method::Riccati, None) => {
+            return fail(
+                Error::InvalidOption("--method riccati needs --stages NX,NU,N (state size, input size, horizon)".into()),
+                None,
+                None,
+                None,
+                None,
+            )
+        }
+        (Method::Riccati, Some(s)) => match s.parse() {
+            Ok(d) => Some(d),
+            Err(e) => return fail(e, None, None, None, None),
+        },
+        (_, Some(_)) => {
+            return fail(
+                Error::InvalidOption("--stages applies only to --method riccati".into()),
+                None,
+                None,
+                None,
+                None,
+            )
+        }
+        (_, None) => None,
+    };
     let problem = match io::read_problem_dir(dir) {
         Ok(p) => p,
         Err(e) => return fail(e, None, None, None, None),
@@ -183,6 +227,7 @@ fn solve(dir: &std::path::Path, method: &str, out: Option<&std::path::Path>, jso
     let sizes = Some((problem.n(), problem.m()));
     let options = Options {
         method,
+        stages,
         ..Default::default()
     };
     let plan = match Plan::analyze(&problem, &options) {
