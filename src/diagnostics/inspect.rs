@@ -100,7 +100,8 @@ pub struct Inspection {
 /// assert_eq!(info.constraints.dependent_rows.len(), 1);
 /// assert!(info.constraints.consistent);
 /// assert_eq!(info.inertia.unwrap().zero, 1);
-/// assert_eq!(info.verdict, None);
+/// // The rank analysis drops the redundant row; the reduced problem has a unique minimizer.
+/// assert_eq!(info.verdict, Some(Verdict::Minimizer));
 /// # Ok::<(), tangency::Error>(())
 /// ```
 pub fn inspect(problem: &Problem, options: &Options) -> Result<Inspection> {
