@@ -86,6 +86,7 @@ pub mod demo;
 pub mod error;
 pub mod io;
 pub mod kkt;
+pub mod lsq;
 pub mod problem;
 pub mod report;
 pub mod solution;
