@@ -3,15 +3,38 @@
 
 use tangency::lsq::{Fit, FitMethod, FitOptions, LsqBuilder};
 
-const CSV: &str = include_str!(concat!(env!("CARGO_MANIFEST_DIR"), "/../shared/fixtures/longley.csv"));
-const JSON: &str = include_str!(concat!(env!("CARGO_MANIFEST_DIR"), "/../shared/fixtures/longley-reference.json"));
+/// Reads a fixture from `../shared/fixtures` beside the checkout (CI layout), or two levels
+/// up (worktrees under `wt/`).
+fn fixture(name: &str) -> String {
+    let root = env!("CARGO_MANIFEST_DIR");
+    for base in ["/../shared/fixtures/", "/../../shared/fixtures/"] {
+        if let Ok(text) = std::fs::read_to_string(format!("{root}{base}{name}")) {
+            return text;
+        }
+    }
+    panic!("fixture {name} not found beside the checkout (../shared/fixtures)")
+}
+
+thread_local! {
+    static CSV_T: &'static str = Box::leak(fixture("longley.csv").into_boxed_str());
+    static JSON_T: &'static str = Box::leak(fixture("longley-reference.json").into_boxed_str());
+}
+
+#[allow(non_snake_case)]
+fn CSV() -> &'static str {
+    CSV_T.with(|s| *s)
+}
+#[allow(non_snake_case)]
+fn JSON() -> &'static str {
+    JSON_T.with(|s| *s)
+}
 
 /// (F with intercept first, y).
 fn data() -> (Vec<f64>, Vec<f64>, usize) {
     let mut f = Vec::new();
     let mut y = Vec::new();
     let mut p = 0;
-    for line in CSV.lines().skip(1).filter(|l| !l.trim().is_empty()) {
+    for line in CSV().lines().skip(1).filter(|l| !l.trim().is_empty()) {
         let v: Vec<f64> = line.split(',').map(|s| s.trim().parse().unwrap()).collect();
         y.push(v[0]);
         f.push(1.0);
@@ -52,12 +75,13 @@ fn numbers(arr: &str) -> Vec<f64> {
 }
 
 fn certified() -> Vec<f64> {
-    numbers(array_after(JSON, "certified_coefficients", "values"))
+    numbers(array_after(JSON(), "certified_coefficients", "values"))
 }
 
 fn certified_sd() -> f64 {
-    let start = JSON.find("certified_residual_standard_deviation").unwrap();
-    let rest = &JSON[start..];
+    let start = JSON().find("certified_residual_standard_deviation").unwrap();
+    let json = JSON();
+    let rest = &json[start..];
     let v = rest.find("\"value\"").unwrap();
     let rest = &rest[v + 7..];
     let a = rest.find('"').unwrap();
@@ -143,9 +167,9 @@ fn augmented_method_matches_certified_values() {
 fn restricted_example_reaches_ten_digits() {
     // longley-reference.json "restricted_example": closed form evaluated at 60 digits.
     let (f, y, p) = data();
-    let r = numbers(array_after(JSON, "restricted_example", "R"));
-    let q = numbers(array_after(JSON, "restricted_example", "q"));
-    let want = numbers(array_after(JSON, "restricted_example", "coefficients"));
+    let r = numbers(array_after(JSON(), "restricted_example", "R"));
+    let q = numbers(array_after(JSON(), "restricted_example", "q"));
+    let want = numbers(array_after(JSON(), "restricted_example", "coefficients"));
     assert_eq!((r.len(), q.len(), want.len()), (14, 2, 7));
     for method in [FitMethod::Dense, FitMethod::Augmented] {
         let fit = LsqBuilder::new()
