@@ -73,28 +73,64 @@ fn dense(c: &mut Criterion) {
         .build()
         .unwrap();
     let script = concat!(env!("CARGO_MANIFEST_DIR"), "/scripts/lsq_numpy_route.py");
-    match Command::new("python3").arg(script).arg(dir.path()).arg("7").output() {
-        Ok(o) if o.status.success() => println!("numpy route (p={p}, n={n}, q={q}): {}", String::from_utf8_lossy(&o.stdout).trim()),
+    match Command::new("python3")
+        .arg(script)
+        .arg(dir.path())
+        .arg("7")
+        // These two slow a current numpy on this machine (see the environment notes); unset
+        // for the reference side only, so it runs its best kernel.
+        .env_remove("OPENBLAS_CORETYPE")
+        .env_remove("OPENBLAS_L2_SIZE")
+        .output()
+    {
+        Ok(o) if o.status.success() => println!(
+            "numpy route (p={p}, n={n}, q={q}): {}",
+            String::from_utf8_lossy(&o.stdout).trim()
+        ),
         Ok(o) => println!("numpy route failed: {}", String::from_utf8_lossy(&o.stderr)),
         Err(e) => println!("numpy route not run: {e}"),
     }
-    let est = FitOptions { method: FitMethod::Dense, inference: false, ..Default::default() };
+    let est = FitOptions {
+        method: FitMethod::Dense,
+        inference: false,
+        ..Default::default()
+    };
     let fit = pr.fit(&est).unwrap();
     println!(
         "tangency dense (estimation only): max rel err {:.3e}, refinement {:?}",
         max_rel(&fit.coefficients, &beta),
         fit.refinement_history
     );
-    let raw = pr.fit(&FitOptions { max_refinement_steps: 0, ..est }).unwrap();
-    println!("tangency dense without refinement: max rel err {:.3e}", max_rel(&raw.coefficients, &beta));
+    let raw = pr
+        .fit(&FitOptions {
+            max_refinement_steps: 0,
+            ..est
+        })
+        .unwrap();
+    println!(
+        "tangency dense without refinement: max rel err {:.3e}",
+        max_rel(&raw.coefficients, &beta)
+    );
     let mut group = c.benchmark_group("lsq_dense_20000x500_q50");
     group.sample_size(10);
     group.bench_function("tangency_estimation", |b| b.iter(|| pr.fit(&est).unwrap()));
     group.bench_function("tangency_no_refinement", |b| {
-        b.iter(|| pr.fit(&FitOptions { max_refinement_steps: 0, ..est }).unwrap())
+        b.iter(|| {
+            pr.fit(&FitOptions {
+                max_refinement_steps: 0,
+                ..est
+            })
+            .unwrap()
+        })
     });
     group.bench_function("tangency_with_inference", |b| {
-        b.iter(|| pr.fit(&FitOptions { method: FitMethod::Dense, ..Default::default() }).unwrap())
+        b.iter(|| {
+            pr.fit(&FitOptions {
+                method: FitMethod::Dense,
+                ..Default::default()
+            })
+            .unwrap()
+        })
     });
     group.finish();
 }
@@ -107,7 +143,11 @@ fn sparse(c: &mut Criterion) {
         return;
     }
     let probe = tangency::ProblemBuilder::new()
-        .hessian_triplets(2000, &(0..2000).map(|i| (i, i, 1.0)).collect::<Vec<_>>(), tangency::Triangle::Lower)
+        .hessian_triplets(
+            2000,
+            &(0..2000).map(|i| (i, i, 1.0)).collect::<Vec<_>>(),
+            tangency::Triangle::Lower,
+        )
         .build()
         .unwrap();
     let plan = tangency::Plan::analyze(&probe, &tangency::Options::default()).unwrap();
@@ -137,7 +177,11 @@ fn sparse(c: &mut Criterion) {
         .restrictions_triplets(q, n, &ct)
         .build()
         .unwrap();
-    let opts = FitOptions { method: FitMethod::Augmented, augmented_covariance_max_n: 0, ..Default::default() };
+    let opts = FitOptions {
+        method: FitMethod::Augmented,
+        augmented_covariance_max_n: 0,
+        ..Default::default()
+    };
     let mut group = c.benchmark_group("lsq_sparse_1e6x1e4");
     group.sample_size(10);
     group.bench_function("tangency_augmented", |b| b.iter(|| pr.fit(&opts).unwrap()));

@@ -78,7 +78,10 @@ fn textbook_formula_agrees_on_random_problems() {
                 .unwrap();
             assert!(max_rel(&fit.coefficients, &b_ref) < 1e-11, "{method:?} seed {seed}");
             if q > 0 {
-                assert!(max_rel(&fit.multipliers, &y_ref) < 1e-10, "{method:?} multipliers seed {seed}");
+                assert!(
+                    max_rel(&fit.multipliers, &y_ref) < 1e-10,
+                    "{method:?} multipliers seed {seed}"
+                );
             }
             // Restrictions hold to rounding.
             for i in 0..q {
@@ -112,7 +115,11 @@ fn multiplier_is_minus_derivative_of_half_rss() {
         dp[i] += h;
         dm[i] -= h;
         let fd = (0.5 * half_rss(&dp).rss - 0.5 * half_rss(&dm).rss) / (2.0 * h);
-        assert!((fd + fit.multipliers[i]).abs() < 1e-6 * (1.0 + fd.abs()), "row {i}: fd {fd}, y {}", fit.multipliers[i]);
+        assert!(
+            (fd + fit.multipliers[i]).abs() < 1e-6 * (1.0 + fd.abs()),
+            "row {i}: fd {fd}, y {}",
+            fit.multipliers[i]
+        );
     }
 }
 
@@ -174,8 +181,18 @@ fn sparse_design_augmented_matches_dense() {
             .build()
             .unwrap()
     };
-    let a = build().fit(&FitOptions { method: FitMethod::Dense, ..Default::default() }).unwrap();
-    let b = build().fit(&FitOptions { method: FitMethod::Augmented, ..Default::default() }).unwrap();
+    let a = build()
+        .fit(&FitOptions {
+            method: FitMethod::Dense,
+            ..Default::default()
+        })
+        .unwrap();
+    let b = build()
+        .fit(&FitOptions {
+            method: FitMethod::Augmented,
+            ..Default::default()
+        })
+        .unwrap();
     assert!(max_rel(&a.coefficients, &b.coefficients) < 1e-12);
     assert!(max_rel(&a.multipliers, &b.multipliers) < 1e-10);
     let (sa, sb) = (a.standard_errors.unwrap(), b.standard_errors.unwrap());
@@ -226,7 +243,10 @@ fn monte_carlo(reps: usize, seed: u64) {
         let sd = (est[j].iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (reps - 1) as f64).sqrt();
         let mean_se = sum_se[j] / reps as f64;
         // Relative sampling error of an SD from `reps` draws ≈ 1/√(2·reps); allow 5 of those.
-        assert!((mean_se / sd - 1.0).abs() < 5.0 / (2.0 * reps as f64).sqrt(), "β{j}: SE {mean_se} vs spread {sd}");
+        assert!(
+            (mean_se / sd - 1.0).abs() < 5.0 / (2.0 * reps as f64).sqrt(),
+            "β{j}: SE {mean_se} vs spread {sd}"
+        );
     }
 }
 
@@ -299,12 +319,19 @@ fn non_unique_fit_reports_the_direction() {
         f.extend_from_slice(&[a, b, a + b]);
     }
     let g = rng.vec(p);
-    let pr = LsqBuilder::new().design_row_major(p, 3, &f).observations(&g).build().unwrap();
+    let pr = LsqBuilder::new()
+        .design_row_major(p, 3, &f)
+        .observations(&g)
+        .build()
+        .unwrap();
     match pr.fit(&FitOptions::default()).unwrap_err() {
         Error::FitNonUnique { direction, .. } => {
             // δ ∝ (1, 1, −1).
             let s = direction[0];
-            assert!((direction[1] - s).abs() < 1e-10 && (direction[2] + s).abs() < 1e-10, "{direction:?}");
+            assert!(
+                (direction[1] - s).abs() < 1e-10 && (direction[2] + s).abs() < 1e-10,
+                "{direction:?}"
+            );
         }
         e => panic!("unexpected {e}"),
     }
@@ -328,7 +355,10 @@ fn ridge_matches_normal_equations() {
     let lam = 0.7;
     let fm = DMatrix::from_row_slice(p, n, &f);
     let a = fm.transpose() * &fm + DMatrix::identity(n, n) * lam;
-    let b = a.cholesky().unwrap().solve(&(fm.transpose() * DVector::from_column_slice(&g)));
+    let b = a
+        .cholesky()
+        .unwrap()
+        .solve(&(fm.transpose() * DVector::from_column_slice(&g)));
     for method in [FitMethod::Dense, FitMethod::Augmented] {
         let fit = LsqBuilder::new()
             .design_row_major(p, n, &f)
@@ -336,7 +366,10 @@ fn ridge_matches_normal_equations() {
             .ridge(lam)
             .build()
             .unwrap()
-            .fit(&FitOptions { method, ..Default::default() })
+            .fit(&FitOptions {
+                method,
+                ..Default::default()
+            })
             .unwrap();
         assert!(max_rel(&fit.coefficients, b.as_slice()) < 1e-12, "{method:?}");
         assert!(fit.standard_errors.is_none());
@@ -350,8 +383,23 @@ fn validation_names_block_row_and_column() {
         .observations(&[1.0, 2.0])
         .build()
         .unwrap_err();
-    assert!(matches!(e, Error::FitInput { block: FitBlock::F, row: Some(0), col: Some(1), .. }), "{e}");
-    let e = LsqBuilder::new().design_row_major(2, 2, &[1.0, 0.0, 0.0, 1.0]).observations(&[1.0]).build().unwrap_err();
+    assert!(
+        matches!(
+            e,
+            Error::FitInput {
+                block: FitBlock::F,
+                row: Some(0),
+                col: Some(1),
+                ..
+            }
+        ),
+        "{e}"
+    );
+    let e = LsqBuilder::new()
+        .design_row_major(2, 2, &[1.0, 0.0, 0.0, 1.0])
+        .observations(&[1.0])
+        .build()
+        .unwrap_err();
     assert!(matches!(e, Error::FitInput { block: FitBlock::G, .. }), "{e}");
     let e = LsqBuilder::new()
         .design_row_major(2, 2, &[1.0, 0.0, 0.0, 1.0])
@@ -365,7 +413,18 @@ fn validation_names_block_row_and_column() {
         .observations(&[1.0, 2.0])
         .build()
         .unwrap_err();
-    assert!(matches!(e, Error::FitInput { block: FitBlock::F, row: Some(5), col: Some(1), .. }), "{e}");
+    assert!(
+        matches!(
+            e,
+            Error::FitInput {
+                block: FitBlock::F,
+                row: Some(5),
+                col: Some(1),
+                ..
+            }
+        ),
+        "{e}"
+    );
     let e = LsqBuilder::new()
         .design_row_major(2, 1, &[1.0, 1.0])
         .observations(&[1.0, 2.0])
@@ -373,9 +432,33 @@ fn validation_names_block_row_and_column() {
         .restriction_rhs(&[f64::INFINITY])
         .build()
         .unwrap_err();
-    assert!(matches!(e, Error::FitInput { block: FitBlock::D, row: Some(0), .. }), "{e}");
-    let e = LsqBuilder::new().design_row_major(2, 1, &[1.0, 1.0]).observations(&[1.0, 2.0]).ridge(-1.0).build().unwrap_err();
-    assert!(matches!(e, Error::FitInput { block: FitBlock::Ridge, .. }), "{e}");
+    assert!(
+        matches!(
+            e,
+            Error::FitInput {
+                block: FitBlock::D,
+                row: Some(0),
+                ..
+            }
+        ),
+        "{e}"
+    );
+    let e = LsqBuilder::new()
+        .design_row_major(2, 1, &[1.0, 1.0])
+        .observations(&[1.0, 2.0])
+        .ridge(-1.0)
+        .build()
+        .unwrap_err();
+    assert!(
+        matches!(
+            e,
+            Error::FitInput {
+                block: FitBlock::Ridge,
+                ..
+            }
+        ),
+        "{e}"
+    );
     assert!(e.is_invalid_input());
     let e = LsqBuilder::new().observations(&[1.0]).build().unwrap_err();
     assert!(e.to_string().contains("block F"), "{e}");
@@ -384,10 +467,22 @@ fn validation_names_block_row_and_column() {
 #[test]
 fn zero_dimensions() {
     // p = 0, n = 0: nothing to fit, no panic.
-    let fit = LsqBuilder::new().design_row_major(0, 0, &[]).observations(&[]).build().unwrap().fit(&FitOptions::default()).unwrap();
+    let fit = LsqBuilder::new()
+        .design_row_major(0, 0, &[])
+        .observations(&[])
+        .build()
+        .unwrap()
+        .fit(&FitOptions::default())
+        .unwrap();
     assert!(fit.coefficients.is_empty() && fit.rss == 0.0);
     // n = 0 with observations: residuals are g.
-    let fit = LsqBuilder::new().design_row_major(3, 0, &[]).observations(&[1.0, 2.0, 2.0]).build().unwrap().fit(&FitOptions::default()).unwrap();
+    let fit = LsqBuilder::new()
+        .design_row_major(3, 0, &[])
+        .observations(&[1.0, 2.0, 2.0])
+        .build()
+        .unwrap()
+        .fit(&FitOptions::default())
+        .unwrap();
     assert_eq!(fit.rss, 9.0);
     // All coefficients fixed by C (k = 0).
     let fit = LsqBuilder::new()
@@ -462,21 +557,42 @@ fn cli_fit_json_and_out() {
     std::fs::write(dir.path().join("d.mtx"), mm(1, 1, &[1.0])).unwrap();
     let out = dir.path().join("out");
     let o = Command::new(env!("CARGO_BIN_EXE_tangency"))
-        .args(["fit", dir.path().to_str().unwrap(), "--json", "--out", out.to_str().unwrap()])
+        .args([
+            "fit",
+            dir.path().to_str().unwrap(),
+            "--json",
+            "--out",
+            out.to_str().unwrap(),
+        ])
         .output()
         .unwrap();
     let text = String::from_utf8(o.stdout).unwrap();
     assert_eq!(o.status.code(), Some(0), "{text}");
     assert_eq!(text.trim().lines().count(), 1);
-    for key in ["\"status\":\"solved\"", "\"p\":10", "\"n\":3", "\"q\":1", "\"coefficients\"", "\"standard_errors\"",
-        "\"multipliers\"", "\"rss\"", "\"sigma\"", "\"restriction_test\"", "\"df1\":1", "\"df2\":7"] {
+    for key in [
+        "\"status\":\"solved\"",
+        "\"p\":10",
+        "\"n\":3",
+        "\"q\":1",
+        "\"coefficients\"",
+        "\"standard_errors\"",
+        "\"multipliers\"",
+        "\"rss\"",
+        "\"sigma\"",
+        "\"restriction_test\"",
+        "\"df1\":1",
+        "\"df2\":7",
+    ] {
         assert!(text.replace(' ', "").contains(key), "{key} missing in {text}");
     }
     assert!(out.join("coefficients.mtx").exists() && out.join("multipliers.mtx").exists());
     // Contradictory restrictions: exit 3, status infeasible.
     std::fs::write(dir.path().join("C.mtx"), mm(2, n, &[1.0, 1.0, 1.0, 2.0, 2.0, 2.0])).unwrap();
     std::fs::write(dir.path().join("d.mtx"), mm(2, 1, &[1.0, 1.0])).unwrap();
-    let o = Command::new(env!("CARGO_BIN_EXE_tangency")).args(["fit", dir.path().to_str().unwrap(), "--json"]).output().unwrap();
+    let o = Command::new(env!("CARGO_BIN_EXE_tangency"))
+        .args(["fit", dir.path().to_str().unwrap(), "--json"])
+        .output()
+        .unwrap();
     let text = String::from_utf8(o.stdout).unwrap();
     assert_eq!(o.status.code(), Some(3), "{text}");
     assert!(text.replace(' ', "").contains("\"status\":\"infeasible\""), "{text}");
@@ -486,7 +602,10 @@ fn cli_fit_json_and_out() {
     let mut w = vec![1.0; p];
     w[4] = 0.0;
     std::fs::write(dir.path().join("w.mtx"), mm(p, 1, &w)).unwrap();
-    let o = Command::new(env!("CARGO_BIN_EXE_tangency")).args(["fit", dir.path().to_str().unwrap(), "--json"]).output().unwrap();
+    let o = Command::new(env!("CARGO_BIN_EXE_tangency"))
+        .args(["fit", dir.path().to_str().unwrap(), "--json"])
+        .output()
+        .unwrap();
     let text = String::from_utf8(o.stdout).unwrap();
     assert_eq!(o.status.code(), Some(2), "{text}");
     assert!(text.contains("w.mtx") && text.contains("row 4"), "{text}");

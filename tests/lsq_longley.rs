@@ -121,7 +121,10 @@ fn unrestricted_reaches_twelve_digits() {
     let cert = certified();
     assert_eq!(cert.len(), 7);
     let lres: Vec<f64> = fit.coefficients.iter().zip(&cert).map(|(e, c)| lre(*e, *c)).collect();
-    eprintln!("Longley LRE per coefficient {lres:.2?}, refinement {:?}", fit.refinement_history);
+    eprintln!(
+        "Longley LRE per coefficient {lres:.2?}, refinement {:?}",
+        fit.refinement_history
+    );
     for (j, l) in lres.iter().enumerate() {
         assert!(*l >= 12.0, "coefficient {j}: LRE {l:.2}");
     }
@@ -136,9 +139,19 @@ fn unrestricted_reaches_twelve_digits() {
 fn unrestricted_without_refinement_is_weaker_or_equal() {
     // Shows what the doubled-precision refinement buys (printed, and refinement never hurts).
     let (f, y, p) = data();
-    let pr = LsqBuilder::new().design_row_major(p, 7, &f).observations(&y).build().unwrap();
+    let pr = LsqBuilder::new()
+        .design_row_major(p, 7, &f)
+        .observations(&y)
+        .build()
+        .unwrap();
     let cert = certified();
-    let min_lre = |fit: &Fit| fit.coefficients.iter().zip(&cert).map(|(e, c)| lre(*e, *c)).fold(99.0f64, f64::min);
+    let min_lre = |fit: &Fit| {
+        fit.coefficients
+            .iter()
+            .zip(&cert)
+            .map(|(e, c)| lre(*e, *c))
+            .fold(99.0f64, f64::min)
+    };
     let raw = pr
         .fit(&FitOptions {
             method: FitMethod::Dense,
@@ -147,7 +160,11 @@ fn unrestricted_without_refinement_is_weaker_or_equal() {
         })
         .unwrap();
     let refined = pr.fit(&FitOptions::default()).unwrap();
-    eprintln!("Longley min LRE: plain QR {:.2}, refined {:.2}", min_lre(&raw), min_lre(&refined));
+    eprintln!(
+        "Longley min LRE: plain QR {:.2}, refined {:.2}",
+        min_lre(&raw),
+        min_lre(&refined)
+    );
     assert!(min_lre(&refined) >= min_lre(&raw) - 0.3);
 }
 
@@ -157,7 +174,10 @@ fn augmented_method_matches_certified_values() {
     let fit = fit_unrestricted(FitMethod::Augmented);
     let cert = certified();
     let lres: Vec<f64> = fit.coefficients.iter().zip(&cert).map(|(e, c)| lre(*e, *c)).collect();
-    eprintln!("Longley augmented LRE {lres:.2?}, refinement {:?}", fit.refinement_history);
+    eprintln!(
+        "Longley augmented LRE {lres:.2?}, refinement {:?}",
+        fit.refinement_history
+    );
     for (j, l) in lres.iter().enumerate() {
         assert!(*l >= 10.0, "coefficient {j}: LRE {l:.2}");
     }
@@ -188,7 +208,11 @@ fn restricted_example_reaches_ten_digits() {
         eprintln!("restricted Longley ({method:?}) LRE {lres:.2?}");
         for (j, l) in lres.iter().enumerate() {
             // β1 is restricted to exactly 0: its error is absolute, against the scale of β.
-            let l = if want[j] == 0.0 { -(fit.coefficients[j].abs() / 1e6).log10() } else { *l };
+            let l = if want[j] == 0.0 {
+                -(fit.coefficients[j].abs() / 1e6).log10()
+            } else {
+                *l
+            };
             assert!(l >= 10.0, "{method:?} coefficient {j}: LRE {l:.2}");
         }
         let t = fit.restriction_test.unwrap();

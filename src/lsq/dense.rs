@@ -127,7 +127,9 @@ impl PivQr {
         let r = qr.R();
         let size = a.nrows().min(a.ncols());
         let r00 = if size > 0 { r[(0, 0)].abs() } else { 0.0 };
-        let rank = (0..size).take_while(|&i| r00 > 0.0 && r[(i, i)].abs() > tol * r00).count();
+        let rank = (0..size)
+            .take_while(|&i| r00 > 0.0 && r[(i, i)].abs() > tol * r00)
+            .count();
         PivQr { qr, perm, rank }
     }
 
@@ -408,11 +410,7 @@ pub(super) fn fit(pr: &LsqProblem, opt: &FitOptions) -> Result<Fit> {
     // Solve and refine.
     let zero_h = vec![0.0; n];
     let (r0, b0, y0) = fac.solve(&gt, &zero_h, &d_sel);
-    let mut st = State {
-        r: r0,
-        beta: b0,
-        y: y0,
-    };
+    let mut st = State { r: r0, beta: b0, y: y0 };
     let c_sel = cd_rows(&cd, &fac.sel);
     let log = refine_loop(
         &mut st,

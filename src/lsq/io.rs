@@ -97,7 +97,10 @@ pub fn read_fit_dir(dir: impl AsRef<Path>) -> Result<LsqProblem> {
     let path = |name: &str| dir.join(name);
     let missing = |name: &str| Error::Io {
         path: path(name),
-        source: std::io::Error::new(std::io::ErrorKind::NotFound, format!("{name} is required in a fit directory")),
+        source: std::io::Error::new(
+            std::io::ErrorKind::NotFound,
+            format!("{name} is required in a fit directory"),
+        ),
     };
     let f = read(&path("F.mtx"))?.ok_or_else(|| missing("F.mtx"))?;
     let mut b = if f.dense {

@@ -66,10 +66,10 @@
 //! covariance is not of that form).
 
 mod augmented;
-pub mod io;
-pub mod report;
 mod dense;
+pub mod io;
 pub mod refine;
+pub mod report;
 mod stats;
 
 use std::fmt;
@@ -157,7 +157,12 @@ impl Input {
                 for i in 0..m.nrows() {
                     for j in 0..m.ncols() {
                         if !m[(i, j)].is_finite() {
-                            return Err(input_err(block, Some(i), Some(j), format!("non-finite value {}", m[(i, j)])));
+                            return Err(input_err(
+                                block,
+                                Some(i),
+                                Some(j),
+                                format!("non-finite value {}", m[(i, j)]),
+                            ));
                         }
                     }
                 }
@@ -367,7 +372,12 @@ impl LsqBuilder {
         if let Some(w) = &self.w {
             check_vec(FitBlock::W, w, p, "p (rows of F)")?;
             if let Some((i, v)) = w.iter().enumerate().find(|(_, v)| **v <= 0.0) {
-                return Err(input_err(FitBlock::W, Some(i), None, format!("weight {v} is not positive")));
+                return Err(input_err(
+                    FitBlock::W,
+                    Some(i),
+                    None,
+                    format!("weight {v} is not positive"),
+                ));
             }
         }
         if !(self.ridge.is_finite() && self.ridge >= 0.0) {

@@ -46,7 +46,10 @@ pub fn fit_json(problem: &LsqProblem, fit: &Fit) -> Json {
     r.set("steps", fit.refinement_steps)
         .set("corrections", fit.refinement_history.as_slice());
     o.set("refinement", r);
-    o.set("notes", Json::Arr(fit.notes.iter().map(|s| Json::from(s.as_str())).collect()));
+    o.set(
+        "notes",
+        Json::Arr(fit.notes.iter().map(|s| Json::from(s.as_str())).collect()),
+    );
     o
 }
 
@@ -55,8 +58,17 @@ pub fn fit_json(problem: &LsqProblem, fit: &Fit) -> Json {
 pub fn fit_error_json(err: &Error, sizes: Option<(usize, usize, usize)>) -> Json {
     let mut o = Json::object();
     o.set("status", err.status());
-    o.set("p", sizes.map(|s| s.0)).set("n", sizes.map(|s| s.1)).set("q", sizes.map(|s| s.2));
-    for key in ["coefficients", "standard_errors", "multipliers", "rss", "sigma", "restriction_test"] {
+    o.set("p", sizes.map(|s| s.0))
+        .set("n", sizes.map(|s| s.1))
+        .set("q", sizes.map(|s| s.2));
+    for key in [
+        "coefficients",
+        "standard_errors",
+        "multipliers",
+        "rss",
+        "sigma",
+        "restriction_test",
+    ] {
         o.set(key, Json::Null);
     }
     match err {
@@ -65,7 +77,10 @@ pub fn fit_error_json(err: &Error, sizes: Option<(usize, usize, usize)>) -> Json
             o.set("direction", direction.as_slice());
         }
         Error::FitContradictory { rows, .. } => {
-            o.set("contradictory_rows", Json::Arr(rows.iter().map(|&i| Json::from(i)).collect()));
+            o.set(
+                "contradictory_rows",
+                Json::Arr(rows.iter().map(|&i| Json::from(i)).collect()),
+            );
         }
         _ => {}
     }
