@@ -27,7 +27,10 @@ impl Rng {
 /// F = [F₁; F₁] (p/2 distinct rows twice), β* integer, Cβ* = d, g = Fβ* + [s; −s].
 /// Then Fᵀ(g − Fβ*) = F₁ᵀs − F₁ᵀs = 0, so β* is the restricted solution (multipliers 0)
 /// with a residual of norm √2‖s‖.
-fn problem(p: usize, n: usize, q: usize) -> (Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>) {
+/// (F row-major, g, C row-major, d, β*).
+type Data = (Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>);
+
+fn problem(p: usize, n: usize, q: usize) -> Data {
     let mut rng = Rng(0x1234_5678);
     let h = p / 2;
     let f1: Vec<f64> = (0..h * n).map(|_| rng.int(50)).collect();

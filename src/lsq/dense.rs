@@ -322,8 +322,8 @@ pub(super) fn fit(pr: &LsqProblem, opt: &FitOptions) -> Result<Fit> {
         }
     }
     let mut gt = vec![0.0; pt];
-    for i in 0..p {
-        gt[i] = pr.sqrt_w(i) * pr.g[i];
+    for (i, gi) in gt.iter_mut().take(p).enumerate() {
+        *gi = pr.sqrt_w(i) * pr.g[i];
     }
     let ra = analyze_restrictions(pr, opt)?;
     let RestrictionAnalysis {

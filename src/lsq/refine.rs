@@ -203,7 +203,8 @@ pub(crate) fn refine_loop<S, R, D>(
         let size = apply(state, &d);
         log.steps += 1;
         log.history.push(size);
-        if !(size > 4.0 * f64::EPSILON) || size > 0.5 * last {
+        let converged = size.is_nan() || size <= 4.0 * f64::EPSILON;
+        if converged || size > 0.5 * last {
             break;
         }
         last = size;

@@ -148,12 +148,12 @@ mod tests {
     #[test]
     fn f_tail_matches_closed_forms() {
         // F(2, d2): P(F ≥ x) = (1 + 2x/d2)^(−d2/2) exactly (closed form of the F(2, ν) tail).
-        for &(x, d2) in &[(0.5, 3.0), (2.0, 10.0), (7.3, 25.0)] {
+        for &(x, d2) in &[(0.5f64, 3.0f64), (2.0, 10.0), (7.3, 25.0)] {
             let exact = (1.0 + 2.0 * x / d2).powf(-d2 / 2.0);
             assert!((f_upper_tail(x, 2.0, d2) - exact).abs() < 1e-12, "{x} {d2}");
         }
         // F(1, 1) is the square of a standard Cauchy variable: P(F ≥ x) = 1 − (2/π)·atan(√x).
-        for &x in &[0.1, 1.0, 9.0] {
+        for &x in &[0.1f64, 1.0, 9.0] {
             let exact = 1.0 - 2.0 / std::f64::consts::PI * x.sqrt().atan();
             assert!((f_upper_tail(x, 1.0, 1.0) - exact).abs() < 1e-12, "{x}");
         }
