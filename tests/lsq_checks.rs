@@ -345,6 +345,9 @@ fn non_unique_fit_reports_the_direction() {
         .fit(&FitOptions::default())
         .unwrap();
     assert_eq!(fit.coefficients[2], 0.0);
+    // F alone is rank deficient: no test of the restriction, said in a note.
+    assert!(fit.restriction_test.is_none());
+    assert!(fit.notes.iter().any(|s| s.contains("unrestricted fit is not unique")));
 }
 
 #[test]

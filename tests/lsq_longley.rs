@@ -217,7 +217,17 @@ fn restricted_example_reaches_ten_digits() {
         }
         let t = fit.restriction_test.unwrap();
         assert_eq!((t.df1, t.df2), (2, 9));
-        assert!(t.statistic > 0.0 && t.p_value >= 0.0 && t.p_value <= 1.0);
+        // RSS_U of the test is the certified unrestricted RSS: (certified residual SD)²·(p − n)
+        // (NIST StRD Longley), and the F(2, ν) tail has the closed form (1 + 2x/ν)^(−ν/2).
+        let rss_u = certified_sd().powi(2) * 9.0;
+        assert!(
+            (t.rss_unrestricted - rss_u).abs() < 1e-9 * rss_u,
+            "{method:?} RSS_U {}",
+            t.rss_unrestricted
+        );
+        let want_f = ((fit.rss - rss_u) / 2.0) / (rss_u / 9.0);
+        assert!((t.statistic - want_f).abs() < 1e-8 * want_f);
+        assert!((t.p_value - (1.0 + 2.0 * t.statistic / 9.0).powf(-4.5)).abs() < 1e-12);
     }
 }
 
