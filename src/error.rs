@@ -262,6 +262,46 @@ pub enum Error {
         /// What is wrong, naming the argument, row and column.
         detail: String,
     },
+    /// Invalid least-squares data ([`crate::lsq`]): names the block and, when it applies,
+    /// the row and column (0-based).
+    #[error("least-squares input, block {block}{}: {detail}", fit_position(*row, *col))]
+    FitInput {
+        /// The offending block of the fit.
+        block: crate::lsq::FitBlock,
+        /// Row (0-based), when the problem is one entry or row.
+        row: Option<usize>,
+        /// Column (0-based), when the problem is one entry.
+        col: Option<usize>,
+        /// What is wrong.
+        detail: String,
+    },
+    /// The restrictions `Cβ = d` of a fit contradict each other: some rows of `C` are
+    /// linear combinations of others but their `d` values are not.
+    #[error("the restrictions Cβ = d are contradictory: {detail}")]
+    FitContradictory {
+        /// Rows of `C` (0-based) that depend on others and disagree with them.
+        rows: Vec<usize>,
+        /// The dependence found, in words.
+        detail: String,
+    },
+    /// `[F; C]` (with weights and ridge) does not have full column rank: the restricted
+    /// fit is not unique. `direction` is a unit vector `δ` with `Fδ ≈ 0` and `Cδ ≈ 0`.
+    #[error("the fit is not unique: {detail}")]
+    FitNonUnique {
+        /// A unit direction along which the coefficients are not determined.
+        direction: Vec<f64>,
+        /// The diagnosis in words.
+        detail: String,
+    },
+}
+
+fn fit_position(row: Option<usize>, col: Option<usize>) -> String {
+    match (row, col) {
+        (Some(r), Some(c)) => format!(" at row {r}, column {c} (0-based)"),
+        (Some(r), None) => format!(" at row {r} (0-based)"),
+        (None, Some(c)) => format!(" at column {c} (0-based)"),
+        (None, None) => String::new(),
+    }
 }
 
 impl Error {
@@ -274,7 +314,12 @@ impl Error {
     pub fn is_no_solution(&self) -> bool {
         matches!(
             self,
-            Error::Singular { .. } | Error::Inaccurate { .. } | Error::Infeasible { .. } | Error::Unbounded { .. }
+            Error::Singular { .. }
+                | Error::Inaccurate { .. }
+                | Error::Infeasible { .. }
+                | Error::Unbounded { .. }
+                | Error::FitContradictory { .. }
+                | Error::FitNonUnique { .. }
         )
     }
 
@@ -282,8 +327,9 @@ impl Error {
     pub fn status(&self) -> &'static str {
         match self {
             Error::Singular { .. } | Error::Inaccurate { .. } => "singular",
-            Error::Infeasible { .. } => "infeasible",
+            Error::Infeasible { .. } | Error::FitContradictory { .. } => "infeasible",
             Error::Unbounded { .. } => "unbounded",
+            Error::FitNonUnique { .. } => "singular",
             _ => "invalid_input",
         }
     }

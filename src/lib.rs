@@ -95,6 +95,7 @@ pub mod error;
 pub mod generate;
 pub mod io;
 pub mod kkt;
+pub mod lsq;
 pub mod problem;
 pub mod report;
 pub mod solution;

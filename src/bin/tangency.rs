@@ -58,6 +58,18 @@ enum Command {
         #[arg(long)]
         control: bool,
     },
+    /// Restricted least squares from a directory of Matrix Market files
+    /// (F.mtx, g.mtx required; C.mtx, d.mtx, w.mtx optional).
+    Fit {
+        /// The fit directory.
+        dir: PathBuf,
+        /// Write coefficients.mtx and multipliers.mtx into this directory.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Print exactly one JSON object on stdout (whatever the outcome).
+        #[arg(long)]
+        json: bool,
+    },
     /// Write a generated test problem as a problem directory.
     ///
     /// Families (invented scenarios for testing linear algebra, not design tools):
@@ -129,7 +141,47 @@ fn main() -> ExitCode {
         } => solve(&dir, &method, stages.as_deref(), out.as_deref(), json, sensitivity),
         Command::Inspect { dir, json } => inspect(&dir, json),
         Command::Generate { family, size, out } => generate(&family, size, &out),
+        Command::Fit { dir, out, json } => fit(&dir, out.as_deref(), json),
     }
+}
+
+fn fit(dir: &std::path::Path, out: Option<&std::path::Path>, json: bool) -> ExitCode {
+    use tangency::lsq::report::{fit_error_json, fit_human, fit_json};
+    let fail = |err: Error, sizes: Option<(usize, usize, usize)>| {
+        if json {
+            println!("{}", fit_error_json(&err, sizes));
+        } else {
+            eprintln!("tangency: {}: {err}", if err.is_no_solution() { "no solution" } else { "invalid input" });
+        }
+        ExitCode::from(exit_code(&err))
+    };
+    let problem = match tangency::lsq::io::read_fit_dir(dir) {
+        Ok(p) => p,
+        Err(e) => return fail(e, None),
+    };
+    let sizes = Some((problem.p(), problem.n(), problem.q()));
+    let result = match problem.fit(&tangency::lsq::FitOptions::default()) {
+        Ok(r) => r,
+        Err(e) => return fail(e, sizes),
+    };
+    if let Some(out) = out {
+        let written = std::fs::create_dir_all(out)
+            .map_err(|source| Error::Io {
+                path: out.to_path_buf(),
+                source,
+            })
+            .and_then(|_| io::write_vector(out.join("coefficients.mtx"), &result.coefficients))
+            .and_then(|_| io::write_vector(out.join("multipliers.mtx"), &result.multipliers));
+        if let Err(e) = written {
+            return fail(e, sizes);
+        }
+    }
+    if json {
+        println!("{}", fit_json(&problem, &result));
+    } else {
+        print!("{}", fit_human(&problem, &result));
+    }
+    ExitCode::SUCCESS
 }
 
 fn generate(family: &str, size: usize, out: &std::path::Path) -> ExitCode {

@@ -1,0 +1,140 @@
+//! Fit directories in Matrix Market format (parsed by nalgebra-sparse's reader, as in
+//! [`crate::io`]).
+//!
+//! | file    | required | shape | meaning |
+//! |---------|----------|-------|---------|
+//! | `F.mtx` | yes      | p×n   | design matrix (`coordinate` → sparse, `array` → dense) |
+//! | `g.mtx` | yes      | p×1   | observations |
+//! | `C.mtx` | no       | q×n   | restriction matrix |
+//! | `d.mtx` | no       | q×1   | restriction right-hand side (zeros if absent) |
+//! | `w.mtx` | no       | p×1   | positive weights (ones if absent) |
+//!
+//! Every validation error names the file it came from.
+
+use std::path::Path;
+
+use faer::Mat;
+use nalgebra_sparse::io::load_coo_from_matrix_market_str;
+use nalgebra_sparse::CooMatrix;
+
+use super::{FitBlock, LsqBuilder, LsqProblem};
+use crate::error::{Error, Result};
+
+struct Loaded {
+    coo: CooMatrix<f64>,
+    dense: bool,
+}
+
+fn read(path: &Path) -> Result<Option<Loaded>> {
+    let text = match std::fs::read_to_string(path) {
+        Ok(t) => t,
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
+        Err(source) => {
+            return Err(Error::Io {
+                path: path.to_path_buf(),
+                source,
+            })
+        }
+    };
+    let header = text.lines().next().unwrap_or("").to_ascii_lowercase();
+    if !header.starts_with("%%matrixmarket") {
+        return Err(Error::Parse {
+            path: path.to_path_buf(),
+            message: "not a Matrix Market file: the first line must start with %%MatrixMarket".into(),
+        });
+    }
+    let dense = header.split_whitespace().any(|w| w == "array");
+    let coo = load_coo_from_matrix_market_str::<f64>(&text).map_err(|e| Error::Parse {
+        path: path.to_path_buf(),
+        message: format!("{:?}: {}", e.kind(), e.message()),
+    })?;
+    Ok(Some(Loaded { coo, dense }))
+}
+
+fn vector(path: &Path, block: FitBlock) -> Result<Option<Vec<f64>>> {
+    let Some(l) = read(path)? else { return Ok(None) };
+    let (r, c) = (l.coo.nrows(), l.coo.ncols());
+    if c != 1 && r != 1 {
+        return Err(Error::FitInput {
+            block,
+            row: None,
+            col: None,
+            detail: format!("a vector must be k×1 or 1×k, found {r}×{c}"),
+        }
+        .in_file(path));
+    }
+    let mut v = vec![0.0; r * c];
+    for (i, j, x) in l.coo.triplet_iter() {
+        v[i.max(j)] += *x;
+    }
+    Ok(Some(v))
+}
+
+fn dense(coo: &CooMatrix<f64>) -> Mat<f64> {
+    let mut m = Mat::zeros(coo.nrows(), coo.ncols());
+    for (i, j, v) in coo.triplet_iter() {
+        m[(i, j)] += *v;
+    }
+    m
+}
+
+fn triplets(coo: &CooMatrix<f64>) -> Vec<(usize, usize, f64)> {
+    coo.triplet_iter().map(|(i, j, v)| (i, j, *v)).collect()
+}
+
+/// Reads a fit directory (see the module docs for the layout).
+///
+/// ```
+/// # let dir = tempfile::tempdir()?;
+/// std::fs::write(dir.path().join("F.mtx"), "%%MatrixMarket matrix array real general\n3 1\n1\n2\n3\n")?;
+/// std::fs::write(dir.path().join("g.mtx"), "%%MatrixMarket matrix array real general\n3 1\n2\n4\n6\n")?;
+/// let p = tangency::lsq::io::read_fit_dir(dir.path())?;
+/// assert_eq!((p.p(), p.n(), p.q()), (3, 1, 0));
+/// # Ok::<(), Box<dyn std::error::Error>>(())
+/// ```
+pub fn read_fit_dir(dir: impl AsRef<Path>) -> Result<LsqProblem> {
+    let dir = dir.as_ref();
+    let path = |name: &str| dir.join(name);
+    let missing = |name: &str| Error::Io {
+        path: path(name),
+        source: std::io::Error::new(
+            std::io::ErrorKind::NotFound,
+            format!("{name} is required in a fit directory"),
+        ),
+    };
+    let f = read(&path("F.mtx"))?.ok_or_else(|| missing("F.mtx"))?;
+    let mut b = if f.dense {
+        LsqBuilder::new().design_dense(dense(&f.coo).as_ref())
+    } else {
+        LsqBuilder::new().design_triplets(f.coo.nrows(), f.coo.ncols(), &triplets(&f.coo))
+    };
+    let g = vector(&path("g.mtx"), FitBlock::G)?.ok_or_else(|| missing("g.mtx"))?;
+    b = b.observations(&g);
+    if let Some(c) = read(&path("C.mtx"))? {
+        b = if c.dense {
+            b.restrictions_dense(dense(&c.coo).as_ref())
+        } else {
+            b.restrictions_triplets(c.coo.nrows(), c.coo.ncols(), &triplets(&c.coo))
+        };
+    }
+    if let Some(d) = vector(&path("d.mtx"), FitBlock::D)? {
+        b = b.restriction_rhs(&d);
+    }
+    if let Some(w) = vector(&path("w.mtx"), FitBlock::W)? {
+        b = b.weights(&w);
+    }
+    b.build().map_err(|e| {
+        let file = match &e {
+            Error::FitInput { block, .. } => match block {
+                FitBlock::F => "F.mtx",
+                FitBlock::G => "g.mtx",
+                FitBlock::C => "C.mtx",
+                FitBlock::D => "d.mtx",
+                FitBlock::W => "w.mtx",
+                _ => return e,
+            },
+            _ => return e,
+        };
+        e.in_file(path(file))
+    })
+}
