@@ -11,7 +11,9 @@ pub fn split(total: usize) -> (usize, usize) {
 }
 
 fn lcg(state: &mut u64) -> f64 {
-    *state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+    *state = state
+        .wrapping_mul(6364136223846793005)
+        .wrapping_add(1442695040888963407);
     ((*state >> 11) as f64 / (1u64 << 53) as f64) * 2.0 - 1.0
 }
 

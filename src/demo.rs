@@ -153,11 +153,7 @@ pub fn run() -> Result<String> {
             sum[d] + applied[d]
         );
     }
-    let max_defl = s
-        .x
-        .chunks(2)
-        .map(|u| u[0].hypot(u[1]))
-        .fold(0.0f64, f64::max);
+    let max_defl = s.x.chunks(2).map(|u| u[0].hypot(u[1])).fold(0.0f64, f64::max);
     let _ = writeln!(out, "  largest node displacement: {:.6} mm", 1000.0 * max_defl);
     let balanced = (sum[0] + applied[0]).abs() < 1e-9 && (sum[1] + applied[1]).abs() < 1e-9;
     let _ = writeln!(

@@ -103,7 +103,9 @@ pub enum Error {
         col: usize,
     },
     /// A sparse entry lies outside the declared shape.
-    #[error("index out of range in block {block}: entry at row {row}, column {col} (0-based) for a {nrows}×{ncols} block")]
+    #[error(
+        "index out of range in block {block}: entry at row {row}, column {col} (0-based) for a {nrows}×{ncols} block"
+    )]
     IndexOutOfRange {
         /// The offending block.
         block: Block,

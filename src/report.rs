@@ -93,7 +93,9 @@ impl<T: Into<Json>> From<Option<T>> for Json {
 impl From<Inertia> for Json {
     fn from(i: Inertia) -> Self {
         let mut o = Json::object();
-        o.set("positive", i.positive).set("negative", i.negative).set("zero", i.zero);
+        o.set("positive", i.positive)
+            .set("negative", i.negative)
+            .set("zero", i.zero);
         o
     }
 }
@@ -167,7 +169,10 @@ pub fn solution_json(problem: &Problem, s: &Solution) -> Json {
         .set("factor_s", s.timing.factor_s)
         .set("solve_s", s.timing.solve_s);
     o.set("timing", t);
-    o.set("notes", Json::Arr(s.notes.iter().map(|n| Json::from(n.as_str())).collect()));
+    o.set(
+        "notes",
+        Json::Arr(s.notes.iter().map(|n| Json::from(n.as_str())).collect()),
+    );
     o
 }
 
@@ -223,7 +228,10 @@ pub fn human(problem: &Problem, s: &Solution) -> String {
             let _ = writeln!(out, "  verdict     {v}: {}", v.explain());
         }
         None => {
-            let _ = writeln!(out, "  verdict     not certified (stationary point computed; its kind was not verified)");
+            let _ = writeln!(
+                out,
+                "  verdict     not certified (stationary point computed; its kind was not verified)"
+            );
         }
     }
     let _ = writeln!(out, "  objective   {:.15e}", s.objective);

@@ -157,9 +157,10 @@ impl Plan {
             Method::Schur => (MethodUsed::Schur, "requested".to_string()),
             Method::NullSpace => (MethodUsed::NullSpace, "requested".to_string()),
             Method::Sparse => (MethodUsed::SparseLdlt, "requested".to_string()),
-            Method::Auto if sparse_ldlt::prefer_sparse(problem) => {
-                (MethodUsed::SparseLdlt, "sparse blocks and a large or sparse KKT matrix".to_string())
-            }
+            Method::Auto if sparse_ldlt::prefer_sparse(problem) => (
+                MethodUsed::SparseLdlt,
+                "sparse blocks and a large or sparse KKT matrix".to_string(),
+            ),
             Method::Auto => auto::choose(problem, options),
         };
         let sparse = match method {
@@ -357,7 +358,10 @@ impl Factorization {
         };
         let (n, m) = (self.problem.n(), self.problem.m());
         if inertia.zero > 0 {
-            return match self.backend.singular_findings(&self.problem, &self.problem.c, &self.problem.b) {
+            return match self
+                .backend
+                .singular_findings(&self.problem, &self.problem.c, &self.problem.b)
+            {
                 Some(findings) => findings.map(|f| f.verdict),
                 None => Err(Error::Singular {
                     inertia,
@@ -446,7 +450,13 @@ impl Factorization {
         };
         let t = Instant::now();
         let Workspace {
-            buf, rhs, z, r, best, col, ..
+            buf,
+            rhs,
+            z,
+            r,
+            best,
+            col,
+            ..
         } = ws;
         let stack = MemStack::new(buf);
         for (dst, v) in rhs.iter_mut().zip(c.iter().map(|v| -v).chain(b.iter().copied())) {
@@ -486,8 +496,7 @@ impl Factorization {
         out.refinement_steps = steps;
         out.inertia = self.backend.inertia();
         // With forced pivots the verdict also needs a solve refined to machine level.
-        let regularized_but_inaccurate =
-            self.backend.regularized_pivots() > 0 && backward_error > 1e3 * f64::EPSILON;
+        let regularized_but_inaccurate = self.backend.regularized_pivots() > 0 && backward_error > 1e3 * f64::EPSILON;
         out.verdict = if regularized_but_inaccurate { None } else { verdict };
         out.method = self.backend.method();
         out.timing = Timing {
@@ -618,7 +627,10 @@ impl Workspace {
     fn check(&self, n: usize, m: usize) -> Result<()> {
         if (self.n, self.m) != (n, m) {
             return Err(Error::StructureChanged {
-                detail: format!("the workspace is for n = {}, m = {}, not n = {n}, m = {m}", self.n, self.m),
+                detail: format!(
+                    "the workspace is for n = {}, m = {}, not n = {n}, m = {m}",
+                    self.n, self.m
+                ),
             });
         }
         Ok(())

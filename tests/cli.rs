@@ -7,7 +7,10 @@ use std::process::Command;
 use serde_json::Value;
 
 fn run(args: &[&str]) -> (i32, String, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_tangency")).args(args).output().expect("binary runs");
+    let out = Command::new(env!("CARGO_BIN_EXE_tangency"))
+        .args(args)
+        .output()
+        .expect("binary runs");
     (
         out.status.code().expect("exit code"),
         String::from_utf8(out.stdout).unwrap(),
@@ -17,7 +20,11 @@ fn run(args: &[&str]) -> (i32, String, String) {
 
 fn json(stdout: &str) -> Value {
     let trimmed = stdout.trim();
-    assert_eq!(trimmed.lines().count(), 1, "exactly one JSON line expected, got: {stdout}");
+    assert_eq!(
+        trimmed.lines().count(),
+        1,
+        "exactly one JSON line expected, got: {stdout}"
+    );
     serde_json::from_str(trimmed).unwrap_or_else(|e| panic!("invalid JSON ({e}): {stdout}"))
 }
 
@@ -37,7 +44,12 @@ fn read_vec(path: &Path) -> Vec<f64> {
     let text = std::fs::read_to_string(path).unwrap();
     assert!(text.starts_with("%%MatrixMarket matrix array real general"));
     let mut lines = text.lines().filter(|l| !l.starts_with('%'));
-    let dims: Vec<usize> = lines.next().unwrap().split_whitespace().map(|t| t.parse().unwrap()).collect();
+    let dims: Vec<usize> = lines
+        .next()
+        .unwrap()
+        .split_whitespace()
+        .map(|t| t.parse().unwrap())
+        .collect();
     assert_eq!(dims[1], 1);
     let v: Vec<f64> = lines.map(|l| l.trim().parse().unwrap()).collect();
     assert_eq!(v.len(), dims[0]);
@@ -52,7 +64,11 @@ fn write_nw162(dir: &Path) {
         "%%MatrixMarket matrix coordinate real symmetric\n% N&W 16.2\n3 3 6\n1 1 6\n2 1 2\n3 1 1\n2 2 5\n3 2 2\n3 3 4\n",
     );
     write(dir, "c.mtx", &dense_vec(&[-8., -3., -3.]));
-    write(dir, "A.mtx", "%%MatrixMarket matrix coordinate real general\n2 3 4\n1 1 1\n1 3 1\n2 2 1\n2 3 1\n");
+    write(
+        dir,
+        "A.mtx",
+        "%%MatrixMarket matrix coordinate real general\n2 3 4\n1 1 1\n1 3 1\n2 2 1\n2 3 1\n",
+    );
     write(dir, "b.mtx", &dense_vec(&[3., 0.]));
 }
 
@@ -61,7 +77,13 @@ fn solve_json_and_out_files_for_nocedal_wright_16_2() {
     let dir = tempfile::tempdir().unwrap();
     write_nw162(dir.path());
     let out = dir.path().join("out");
-    let (code, stdout, _) = run(&["solve", dir.path().to_str().unwrap(), "--json", "--out", out.to_str().unwrap()]);
+    let (code, stdout, _) = run(&[
+        "solve",
+        dir.path().to_str().unwrap(),
+        "--json",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
     assert_eq!(code, 0);
     let j = json(&stdout);
     assert_eq!(j["status"], "solved");
@@ -69,7 +91,11 @@ fn solve_json_and_out_files_for_nocedal_wright_16_2() {
     assert_eq!(j["n"], 3);
     assert_eq!(j["m"], 2);
     // auto may pick any dense-structure method; the report names the one used.
-    assert!(["dense", "schur", "nullspace"].contains(&j["method"].as_str().unwrap()), "{}", j["method"]);
+    assert!(
+        ["dense", "schur", "nullspace"].contains(&j["method"].as_str().unwrap()),
+        "{}",
+        j["method"]
+    );
     assert_eq!(j["inertia"]["positive"], 3);
     assert_eq!(j["inertia"]["negative"], 2);
     assert_eq!(j["inertia"]["zero"], 0);
@@ -93,7 +119,11 @@ fn solve_json_and_out_files_for_nocedal_wright_16_2() {
     // 17 significant digits on disk.
     let text = std::fs::read_to_string(out.join("x.mtx")).unwrap();
     let first = text.lines().nth(2).unwrap();
-    assert_eq!(first.split('e').next().unwrap().replace(['-', '.'], "").len(), 17, "{first}");
+    assert_eq!(
+        first.split('e').next().unwrap().replace(['-', '.'], "").len(),
+        17,
+        "{first}"
+    );
 }
 
 /// Hock & Schittkowski (1981), HS48 with `general` array H (full, symmetric), and
@@ -112,7 +142,11 @@ fn array_files_and_saddle_verdict() {
     }
     write(dir.path(), "H.mtx", &s);
     write(dir.path(), "c.mtx", &dense_vec(&[-2., 0., 0., 0., 0.]));
-    write(dir.path(), "A.mtx", "%%MatrixMarket matrix array real general\n2 5\n1\n0\n1\n0\n1\n1\n1\n-2\n1\n-2\n");
+    write(
+        dir.path(),
+        "A.mtx",
+        "%%MatrixMarket matrix array real general\n2 5\n1\n0\n1\n0\n1\n1\n1\n-2\n1\n-2\n",
+    );
     write(dir.path(), "b.mtx", &dense_vec(&[5., -3.]));
     let (code, stdout, _) = run(&["solve", dir.path().to_str().unwrap(), "--json"]);
     assert_eq!(code, 0);
@@ -124,8 +158,16 @@ fn array_files_and_saddle_verdict() {
     // Saddle by construction: H = diag(1, −1), one constraint x0 = 1 leaves x1 free with
     // negative curvature; K inertia (1, 2, 0).
     let dir = tempfile::tempdir().unwrap();
-    write(dir.path(), "H.mtx", "%%MatrixMarket matrix coordinate real symmetric\n2 2 2\n1 1 1\n2 2 -1\n");
-    write(dir.path(), "A.mtx", "%%MatrixMarket matrix coordinate real general\n1 2 1\n1 1 1\n");
+    write(
+        dir.path(),
+        "H.mtx",
+        "%%MatrixMarket matrix coordinate real symmetric\n2 2 2\n1 1 1\n2 2 -1\n",
+    );
+    write(
+        dir.path(),
+        "A.mtx",
+        "%%MatrixMarket matrix coordinate real general\n1 2 1\n1 1 1\n",
+    );
     write(dir.path(), "b.mtx", &dense_vec(&[1.0]));
     let (code, stdout, _) = run(&["solve", dir.path().to_str().unwrap(), "--json"]);
     assert_eq!(code, 0);
@@ -138,9 +180,19 @@ fn array_files_and_saddle_verdict() {
 #[test]
 fn unconstrained_problem_without_optional_files() {
     let dir = tempfile::tempdir().unwrap();
-    write(dir.path(), "H.mtx", "%%MatrixMarket matrix coordinate real symmetric\n2 2 2\n1 1 4\n2 2 2\n");
+    write(
+        dir.path(),
+        "H.mtx",
+        "%%MatrixMarket matrix coordinate real symmetric\n2 2 2\n1 1 4\n2 2 2\n",
+    );
     let out = dir.path().join("o");
-    let (code, stdout, _) = run(&["solve", dir.path().to_str().unwrap(), "--json", "--out", out.to_str().unwrap()]);
+    let (code, stdout, _) = run(&[
+        "solve",
+        dir.path().to_str().unwrap(),
+        "--json",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
     assert_eq!(code, 0, "{stdout}");
     let j = json(&stdout);
     assert_eq!(j["m"], 0);
@@ -152,9 +204,17 @@ fn unconstrained_problem_without_optional_files() {
 #[test]
 fn dependent_constraint_rows_redundant_or_contradictory() {
     let dir = tempfile::tempdir().unwrap();
-    write(dir.path(), "H.mtx", "%%MatrixMarket matrix coordinate real symmetric\n2 2 2\n1 1 1\n2 2 1\n");
+    write(
+        dir.path(),
+        "H.mtx",
+        "%%MatrixMarket matrix coordinate real symmetric\n2 2 2\n1 1 1\n2 2 1\n",
+    );
     // Two identical constraint rows x0 + x1 = b.
-    write(dir.path(), "A.mtx", "%%MatrixMarket matrix coordinate real general\n2 2 4\n1 1 1\n1 2 1\n2 1 1\n2 2 1\n");
+    write(
+        dir.path(),
+        "A.mtx",
+        "%%MatrixMarket matrix coordinate real general\n2 2 4\n1 1 1\n1 2 1\n2 1 1\n2 2 1\n",
+    );
     // Consistent: the copy is dropped and the minimizer x = (½, ½) is returned.
     write(dir.path(), "b.mtx", &dense_vec(&[1.0, 1.0]));
     let (code, stdout, _) = run(&["solve", dir.path().to_str().unwrap(), "--json"]);
@@ -173,12 +233,18 @@ fn dependent_constraint_rows_redundant_or_contradictory() {
     assert_eq!(j["status"], "infeasible");
     assert!(j["verdict"].is_null());
     let msg = j["message"].as_str().unwrap();
-    assert!(msg.contains("row 1 = 1.0·row 0") && msg.contains("contradiction 1.000e0"), "{msg}");
+    assert!(
+        msg.contains("row 1 = 1.0·row 0") && msg.contains("contradiction 1.000e0"),
+        "{msg}"
+    );
     // Human mode: nothing on stdout, the reason on stderr.
     let (code, stdout, stderr) = run(&["solve", dir.path().to_str().unwrap()]);
     assert_eq!(code, 3);
     assert!(stdout.is_empty());
-    assert!(stderr.contains("no solution") && stderr.contains("infeasible"), "{stderr}");
+    assert!(
+        stderr.contains("no solution") && stderr.contains("infeasible"),
+        "{stderr}"
+    );
 }
 
 /// Every bad-input path through the command line: exit 2, one JSON object, a message that
@@ -190,37 +256,62 @@ fn bad_input_exits_2_and_names_the_place() {
         ("missing H", vec![], vec!["H.mtx"]),
         (
             "malformed H",
-            vec![("H.mtx", "%%MatrixMarket matrix coordinate real general\n2 2 1\n1 x 1\n".into())],
+            vec![(
+                "H.mtx",
+                "%%MatrixMarket matrix coordinate real general\n2 2 1\n1 x 1\n".into(),
+            )],
             vec!["H.mtx"],
         ),
-        ("not matrix market", vec![("H.mtx", "hello\n".into())], vec!["H.mtx", "Matrix Market"]),
+        (
+            "not matrix market",
+            vec![("H.mtx", "hello\n".into())],
+            vec!["H.mtx", "Matrix Market"],
+        ),
         (
             "asymmetric H",
-            vec![("H.mtx", "%%MatrixMarket matrix coordinate real general\n2 2 3\n1 1 1\n1 2 1\n2 2 1\n".into())],
+            vec![(
+                "H.mtx",
+                "%%MatrixMarket matrix coordinate real general\n2 2 3\n1 1 1\n1 2 1\n2 2 1\n".into(),
+            )],
             vec!["H.mtx", "not symmetric", "H[0,1]"],
         ),
         (
             "non-square H",
-            vec![("H.mtx", "%%MatrixMarket matrix coordinate real general\n2 3 1\n1 1 1\n".into())],
+            vec![(
+                "H.mtx",
+                "%%MatrixMarket matrix coordinate real general\n2 3 1\n1 1 1\n".into(),
+            )],
             vec!["H.mtx", "block H"],
         ),
         (
             "out of range",
-            vec![("H.mtx", "%%MatrixMarket matrix coordinate real general\n2 2 1\n3 1 1\n".into())],
+            vec![(
+                "H.mtx",
+                "%%MatrixMarket matrix coordinate real general\n2 2 1\n3 1 1\n".into(),
+            )],
             vec!["H.mtx", "block H", "row 2, column 0"],
         ),
         (
             "A columns",
             vec![
-                ("H.mtx", "%%MatrixMarket matrix coordinate real symmetric\n2 2 1\n1 1 1\n".into()),
-                ("A.mtx", "%%MatrixMarket matrix coordinate real general\n1 3 1\n1 3 1\n".into()),
+                (
+                    "H.mtx",
+                    "%%MatrixMarket matrix coordinate real symmetric\n2 2 1\n1 1 1\n".into(),
+                ),
+                (
+                    "A.mtx",
+                    "%%MatrixMarket matrix coordinate real general\n1 3 1\n1 3 1\n".into(),
+                ),
             ],
             vec!["A.mtx", "block A", "1×2"],
         ),
         (
             "c length",
             vec![
-                ("H.mtx", "%%MatrixMarket matrix coordinate real symmetric\n2 2 1\n1 1 1\n".into()),
+                (
+                    "H.mtx",
+                    "%%MatrixMarket matrix coordinate real symmetric\n2 2 1\n1 1 1\n".into(),
+                ),
                 ("c.mtx", dense_vec(&[1.0, 2.0, 3.0])),
             ],
             vec!["c.mtx", "block c"],
@@ -228,7 +319,10 @@ fn bad_input_exits_2_and_names_the_place() {
         (
             "b without A",
             vec![
-                ("H.mtx", "%%MatrixMarket matrix coordinate real symmetric\n2 2 1\n1 1 1\n".into()),
+                (
+                    "H.mtx",
+                    "%%MatrixMarket matrix coordinate real symmetric\n2 2 1\n1 1 1\n".into(),
+                ),
                 ("b.mtx", dense_vec(&[1.0])),
             ],
             vec!["b.mtx", "block b"],
@@ -236,8 +330,14 @@ fn bad_input_exits_2_and_names_the_place() {
         (
             "infinite value",
             vec![
-                ("H.mtx", "%%MatrixMarket matrix coordinate real symmetric\n2 2 1\n1 1 1\n".into()),
-                ("A.mtx", "%%MatrixMarket matrix coordinate real general\n1 2 1\n1 2 1e999\n".into()),
+                (
+                    "H.mtx",
+                    "%%MatrixMarket matrix coordinate real symmetric\n2 2 1\n1 1 1\n".into(),
+                ),
+                (
+                    "A.mtx",
+                    "%%MatrixMarket matrix coordinate real general\n1 2 1\n1 2 1e999\n".into(),
+                ),
             ],
             vec!["A.mtx", "non-finite", "row 0, column 1"],
         ),
@@ -258,7 +358,10 @@ fn bad_input_exits_2_and_names_the_place() {
         // Without --json: message on stderr, exit 2.
         let (code, stdout, stderr) = run(&["solve", dir.path().to_str().unwrap()]);
         assert_eq!(code, 2, "{name}");
-        assert!(stdout.is_empty() && stderr.contains("invalid input"), "{name}: {stderr}");
+        assert!(
+            stdout.is_empty() && stderr.contains("invalid input"),
+            "{name}: {stderr}"
+        );
     }
 }
 
@@ -271,7 +374,10 @@ fn unknown_method_lists_known_ones() {
     let j = json(&stdout);
     assert_eq!(j["status"], "invalid_input");
     let msg = j["message"].as_str().unwrap();
-    assert!(msg.contains("magic") && msg.contains("auto") && msg.contains("dense"), "{msg}");
+    assert!(
+        msg.contains("magic") && msg.contains("auto") && msg.contains("dense"),
+        "{msg}"
+    );
     // Usage errors with --json still print one JSON object.
     let (code, stdout, _) = run(&["solve", "--json", "--bogus-flag"]);
     assert_eq!(code, 2);

@@ -112,10 +112,20 @@ fn check(case: &Case, options: &Options) {
     for (got, want) in s.y.iter().zip(&case.y) {
         assert!((got - want).abs() < 1e-13, "{}: y = {:?}", case.name, s.y);
     }
-    assert!((s.objective + case.constant - case.f).abs() < 1e-13, "{}: f = {}", case.name, s.objective);
+    assert!(
+        (s.objective + case.constant - case.f).abs() < 1e-13,
+        "{}: f = {}",
+        case.name,
+        s.objective
+    );
     assert_eq!(s.inertia, Some(case.inertia), "{}", case.name);
     assert_eq!(s.verdict, Some(Verdict::Minimizer), "{}", case.name);
-    assert!(s.backward_error <= 4.0 * f64::EPSILON, "{}: backward error {}", case.name, s.backward_error);
+    assert!(
+        s.backward_error <= 4.0 * f64::EPSILON,
+        "{}: backward error {}",
+        case.name,
+        s.backward_error
+    );
     assert!(s.primal_residual < 1e-13 && s.dual_residual < 1e-13, "{}", case.name);
 }
 
@@ -158,7 +168,11 @@ fn worked_examples_one_triangle_and_sparse_storage() {
             .build()
             .unwrap();
         let s = solve(&p, &Options::default()).unwrap();
-        assert!(s.x.iter().zip(&case.x).all(|(g, w)| (g - w).abs() < 1e-13), "{}", case.name);
+        assert!(
+            s.x.iter().zip(&case.x).all(|(g, w)| (g - w).abs() < 1e-13),
+            "{}",
+            case.name
+        );
         assert_eq!(s.verdict, Some(Verdict::Minimizer));
     }
 }

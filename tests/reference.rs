@@ -3,8 +3,8 @@
 
 mod common;
 
-use common::*;
 use common::Rng;
+use common::*;
 use proptest::prelude::*;
 use tangency::{solve, Error, Options, Plan, Verdict};
 
@@ -39,13 +39,28 @@ fn random_problems_match_nalgebra_lu_and_eigenvalues() {
         let cond = cond2(&k);
         let scale = inf_norm(z_ref.as_slice()).max(1.0);
         let err = max_abs_diff(&[s.x.clone(), s.y.clone()].concat(), z_ref.as_slice());
-        assert!(err <= 1e-14 * cond * scale + 1e-15, "trial {trial}: error {err:e}, cond {cond:e}");
+        assert!(
+            err <= 1e-14 * cond * scale + 1e-15,
+            "trial {trial}: error {err:e}, cond {cond:e}"
+        );
         let (pos, neg, zero) = eig_inertia(&k, 1e-12);
         let inertia = s.inertia.unwrap();
-        assert_eq!((inertia.positive, inertia.negative, inertia.zero), (pos, neg, zero), "trial {trial}");
-        let expect = if (pos, neg) == (n, m) { Verdict::Minimizer } else { Verdict::Saddle };
+        assert_eq!(
+            (inertia.positive, inertia.negative, inertia.zero),
+            (pos, neg, zero),
+            "trial {trial}"
+        );
+        let expect = if (pos, neg) == (n, m) {
+            Verdict::Minimizer
+        } else {
+            Verdict::Saddle
+        };
         assert_eq!(s.verdict, Some(expect), "trial {trial}");
-        assert!(s.backward_error <= 4.0 * f64::EPSILON, "trial {trial}: {}", s.backward_error);
+        assert!(
+            s.backward_error <= 4.0 * f64::EPSILON,
+            "trial {trial}: {}",
+            s.backward_error
+        );
     }
 }
 

@@ -63,9 +63,9 @@ fn horizon(spec: Spec) -> Horizon {
     let mut b = HorizonBuilder::new(nx, nu, horizon)
         .dynamics_with(|k| dyns[k].clone())
         .cost_with(|k| (costs[k].0.clone(), costs[k].1.clone()));
-    for k in 0..horizon {
+    for (k, cost) in costs.iter().enumerate() {
         b = b
-            .stage_cross_weight(k, costs[k].2.as_ref())
+            .stage_cross_weight(k, cost.2.as_ref())
             .stage_linear(k, &rng.vec(nx), &rng.vec(nu))
             .stage_offset(k, &rng.vec(nx));
         if spec.constraints && nu > 0 && k % 2 == 0 {

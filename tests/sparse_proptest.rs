@@ -5,7 +5,9 @@
 use proptest::prelude::*;
 use tangency::{Method, Options, ProblemBuilder, Triangle, Verdict};
 
-fn problem_strategy() -> impl Strategy<Value = (usize, usize, Vec<(usize, usize, f64)>, Vec<(usize, usize, f64)>, u64)> {
+type Entries = Vec<(usize, usize, f64)>;
+
+fn problem_strategy() -> impl Strategy<Value = (usize, usize, Entries, Entries, u64)> {
     (0usize..25, 0usize..8).prop_flat_map(|(n, m0)| {
         let m = if n == 0 { 0 } else { m0.min(n) };
         let offdiag = prop::collection::vec((0..n.max(1), 0..n.max(1), -1.0f64..1.0), 0..2 * n + 1);
@@ -28,8 +30,8 @@ proptest! {
                 rowsum[j] += v.abs();
             }
         }
-        for i in 0..n {
-            h.push((i, i, 1.0 + rowsum[i]));
+        for (i, r) in rowsum.iter().enumerate() {
+            h.push((i, i, 1.0 + r));
         }
         // A: random entries plus a unit "pivot" per row on distinct columns (full row rank).
         let mut a: Vec<(usize, usize, f64)> = a_rand.into_iter().filter(|&(r, j, _)| r < m && j < n && j != r).collect();
@@ -53,8 +55,8 @@ proptest! {
         let s = tangency::solve(&p, &Options { method: Method::Sparse, ..Default::default() }).unwrap();
         let d = tangency::solve(&p, &Options { method: Method::Dense, ..Default::default() }).unwrap();
         prop_assert!(s.backward_error <= 1e-15, "backward error {}", s.backward_error);
-        for i in 0..n { prop_assert!((s.x[i] - xs[i]).abs() <= 1e-10, "x[{}]", i); }
-        for i in 0..m { prop_assert!((s.y[i] - ys[i]).abs() <= 1e-10, "y[{}]", i); }
+        for (i, (got, want)) in s.x.iter().zip(&xs).enumerate() { prop_assert!((got - want).abs() <= 1e-10, "x[{}]", i); }
+        for (i, (got, want)) in s.y.iter().zip(&ys).enumerate() { prop_assert!((got - want).abs() <= 1e-10, "y[{}]", i); }
         prop_assert_eq!(s.inertia, d.inertia);
         prop_assert_eq!(s.verdict, Some(Verdict::Minimizer));
     }

@@ -131,7 +131,9 @@ impl Schur {
             }
         })?;
         let tol = self.params.pivot_factor * dim as f64 * f64::EPSILON * dmax;
-        if let Some(i) = (0..dim).find(|&i| (a[(i, i)] * a[(i, i)]).partial_cmp(&tol) != Some(std::cmp::Ordering::Greater)) {
+        if let Some(i) =
+            (0..dim).find(|&i| (a[(i, i)] * a[(i, i)]).partial_cmp(&tol) != Some(std::cmp::Ordering::Greater))
+        {
             return Err(format!(
                 "{what} is numerically singular (Cholesky pivot {i}: {:.2e} ≤ {tol:.1e})",
                 a[(i, i)] * a[(i, i)]

@@ -12,7 +12,11 @@ use tangency::report::{error_json, human, solution_json, Json};
 use tangency::{diagnostics, io, Error, Method, Options, Plan};
 
 #[derive(Parser, Debug)]
-#[command(name = "tangency", version, about = "Equality-constrained quadratic programs and their KKT systems")]
+#[command(
+    name = "tangency",
+    version,
+    about = "Equality-constrained quadratic programs and their KKT systems"
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
@@ -151,7 +155,14 @@ fn fit(dir: &std::path::Path, out: Option<&std::path::Path>, json: bool) -> Exit
         if json {
             println!("{}", fit_error_json(&err, sizes));
         } else {
-            eprintln!("tangency: {}: {err}", if err.is_no_solution() { "no solution" } else { "invalid input" });
+            eprintln!(
+                "tangency: {}: {err}",
+                if err.is_no_solution() {
+                    "no solution"
+                } else {
+                    "invalid input"
+                }
+            );
         }
         ExitCode::from(exit_code(&err))
     };
@@ -239,7 +250,14 @@ fn solve(
             o.set("condition_estimate", kappa.filter(|k| k.is_finite()));
             println!("{o}");
         } else {
-            eprintln!("tangency: {}: {err}", if err.is_no_solution() { "no solution" } else { "invalid input" });
+            eprintln!(
+                "tangency: {}: {err}",
+                if err.is_no_solution() {
+                    "no solution"
+                } else {
+                    "invalid input"
+                }
+            );
         }
         ExitCode::from(exit_code(&err))
     };
@@ -250,7 +268,9 @@ fn solve(
     let stages: Option<tangency::stagewise::StageDims> = match (method, stages) {
         (Method::Riccati, None) => {
             return fail(
-                Error::InvalidOption("--method riccati needs --stages NX,NU,N (state size, input size, horizon)".into()),
+                Error::InvalidOption(
+                    "--method riccati needs --stages NX,NU,N (state size, input size, horizon)".into(),
+                ),
                 None,
                 None,
                 None,
@@ -319,7 +339,8 @@ fn solve(
         if sensitivity {
             let d = diagnostics::sensitivity::objective_sensitivity(&solution);
             let mut sens = Json::object();
-            sens.set("objective_wrt_b", &d.wrt_b[..]).set("objective_wrt_c", &d.wrt_c[..]);
+            sens.set("objective_wrt_b", &d.wrt_b[..])
+                .set("objective_wrt_c", &d.wrt_c[..]);
             o.set("sensitivity", sens);
         }
         println!("{o}");
@@ -331,10 +352,17 @@ fn solve(
         );
         if sensitivity {
             println!("  sensitivity of the optimal objective (first order):");
-            print!("{}", diagnostics::sensitivity::objective_sensitivity(&solution).describe(20));
+            print!(
+                "{}",
+                diagnostics::sensitivity::objective_sensitivity(&solution).describe(20)
+            );
         }
         if let Some(out) = out {
-            println!("  written     {} and {}", out.join("x.mtx").display(), out.join("multipliers.mtx").display());
+            println!(
+                "  written     {} and {}",
+                out.join("x.mtx").display(),
+                out.join("multipliers.mtx").display()
+            );
         }
     }
     ExitCode::SUCCESS

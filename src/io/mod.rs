@@ -60,12 +60,21 @@ fn read(path: &Path, block: Block) -> Result<Option<Loaded>> {
 /// The parser reports an out-of-range coordinate without its position; find the first
 /// such entry (1-based in the file) so the error names it (0-based, like every error).
 fn locate_out_of_range(text: &str, block: Block, path: &Path) -> Option<Error> {
-    let mut lines = text.lines().map(str::trim).filter(|l| !l.is_empty() && !l.starts_with('%'));
-    let size: Vec<usize> = lines.next()?.split_whitespace().filter_map(|t| t.parse().ok()).collect();
+    let mut lines = text
+        .lines()
+        .map(str::trim)
+        .filter(|l| !l.is_empty() && !l.starts_with('%'));
+    let size: Vec<usize> = lines
+        .next()?
+        .split_whitespace()
+        .filter_map(|t| t.parse().ok())
+        .collect();
     let (nrows, ncols) = (*size.first()?, *size.get(1)?);
     lines.find_map(|l| {
         let mut it = l.split_whitespace().map(|t| t.parse::<usize>());
-        let (Some(Ok(i)), Some(Ok(j))) = (it.next(), it.next()) else { return None };
+        let (Some(Ok(i)), Some(Ok(j))) = (it.next(), it.next()) else {
+            return None;
+        };
         if i == 0 || j == 0 {
             return Some(Error::Parse {
                 path: path.to_path_buf(),
@@ -208,9 +217,7 @@ pub fn write_problem_dir(problem: &Problem, dir: impl AsRef<Path>) -> Result<()>
         path: dir.to_path_buf(),
         source,
     })?;
-    let io = |path: PathBuf, text: String| {
-        std::fs::write(&path, text).map_err(|source| Error::Io { path, source })
-    };
+    let io = |path: PathBuf, text: String| std::fs::write(&path, text).map_err(|source| Error::Io { path, source });
     let h = problem.hessian();
     let mut lower = Vec::new();
     h.for_each(|i, j, v| {

@@ -506,7 +506,11 @@ fn build_hessian(input: Input, triangle: Triangle, tol: f64) -> Result<Matrix> {
                             col: j,
                         });
                     }
-                    let mirrored: Vec<_> = entries.iter().filter(|e| e.0 != e.1).map(|&(i, j, v)| (j, i, v)).collect();
+                    let mirrored: Vec<_> = entries
+                        .iter()
+                        .filter(|e| e.0 != e.1)
+                        .map(|&(i, j, v)| (j, i, v))
+                        .collect();
                     entries.extend(mirrored);
                     Ok(Matrix::Sparse(csc_from_triplets(n, n, &mut entries)))
                 }
