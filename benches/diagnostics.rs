@@ -1,7 +1,8 @@
 //! Cost of the diagnostics relative to one solve with the same factorization.
 //!
 //! Dense KKT, n = 1500, m = 500 (N = 2000), convex (H = BᵀB/n + I, A random), factored
-//! once outside the timings. Side by side in one run:
+//! once outside the timings, with the method `auto` picks (group `diagnostics_dense_2000`)
+//! and with the dense LBLᵀ (`diagnostics_dense_2000_lblt`). Side by side in one run:
 //!
 //! * `solve_refined`: `Factorization::solve_into` (one solve + refinement + certificate): the
 //!   reference a user pays per right-hand side;
@@ -12,14 +13,18 @@
 //!
 //! Run: `cargo bench --bench diagnostics`; medians are in
 //! `target/criterion/diagnostics_dense_2000/*/new/estimates.json`.
-//! A sparse family is not measured here yet (no sparse backend on this branch).
+//!
+//! Sparse family: the Poisson-control generator (`generate::poisson`, k = 100: n = 20 000,
+//! m = 10 000, N = 30 000) with the sparse LDLᵀ backend, same five measurements
+//! (group `diagnostics_sparse_poisson_k100`).
 
 use criterion::{criterion_group, criterion_main, Criterion};
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::Mat;
 use std::hint::black_box;
 use tangency::diagnostics::{condition, sensitivity};
-use tangency::{Options, Plan, ProblemBuilder, Solution, Triangle};
+use tangency::generate::poisson::PoissonControl;
+use tangency::{Method, Options, Plan, Problem, ProblemBuilder, Solution, Triangle};
 
 /// Deterministic values in [-1, 1) (SplitMix64; common practice).
 struct Rng(u64);
@@ -52,11 +57,31 @@ fn bench(c: &mut Criterion) {
         .rhs(&bv)
         .build()
         .unwrap();
-    let f = Plan::analyze(&p, &Options::default()).unwrap().factor(&p).unwrap();
+    // auto (on a convex dense problem: the Schur-complement method) and the dense LBLᵀ.
+    measure(c, "diagnostics_dense_2000", &p, &Options::default());
+    let lblt = Options {
+        method: Method::Dense,
+        ..Default::default()
+    };
+    measure(c, "diagnostics_dense_2000_lblt", &p, &lblt);
+    let sparse = PoissonControl::new(100).build().unwrap();
+    let opts = Options {
+        method: Method::Sparse,
+        ..Default::default()
+    };
+    measure(c, "diagnostics_sparse_poisson_k100", &sparse, &opts);
+}
+
+fn measure(c: &mut Criterion, group_name: &str, p: &Problem, opts: &Options) {
+    let (n, m) = (p.n(), p.m());
+    let (cv, bv) = (p.linear().to_vec(), p.rhs().to_vec());
+    let mut rng = Rng(7);
+    let f = Plan::analyze(p, opts).unwrap().factor(p).unwrap();
     let s = f.solve().unwrap();
     let est = condition::estimate(&f);
     eprintln!(
-        "N = {}: κ₁ ≈ {:.3e} from {} solve calls; solve backward error {:.1e} after {} refinement step(s)",
+        "{group_name} ({}), N = {}: κ₁ ≈ {:.3e} from {} solve calls; solve backward error {:.1e} after {} refinement step(s)",
+        f.backend().method(),
         n + m,
         est.kappa,
         est.solves,
@@ -68,7 +93,7 @@ fn bench(c: &mut Criterion) {
     let g = sensitivity::adjoint(&f, &s, &gx, &gy).unwrap();
     eprintln!("adjoint solve backward error {:.1e}", g.backward_error);
 
-    let mut group = c.benchmark_group("diagnostics_dense_2000");
+    let mut group = c.benchmark_group(group_name);
     group.sample_size(20);
     let mut ws = f.workspace();
     let mut out = Solution::empty(n, m, s.method);
