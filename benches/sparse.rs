@@ -67,7 +67,8 @@ fn sparse_options() -> Options {
 
 fn poisson(c: &mut Criterion) {
     for k in sizes() {
-        let dir = PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/target/bench-problems")).join(format!("poisson-control-{k}"));
+        let dir = PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/target/bench-problems"))
+            .join(format!("poisson-control-{k}"));
         if !dir.join("A.mtx").exists() {
             write_family(Family::PoissonControl, k, &dir).expect("write problem directory");
         }
@@ -85,7 +86,9 @@ fn poisson(c: &mut Criterion) {
             b.iter(|| f.solve_into(p.linear(), p.rhs(), &mut ws, &mut out).unwrap())
         });
         group.bench_function("refactor", |b| b.iter(|| f.refactor(&p).unwrap()));
-        group.bench_function("analyze+factor+solve", |b| b.iter(|| black_box(tangency::solve(&p, &o).unwrap())));
+        group.bench_function("analyze+factor+solve", |b| {
+            b.iter(|| black_box(tangency::solve(&p, &o).unwrap()))
+        });
         group.finish();
 
         // Side-by-side table (medians of 5 wall-clock runs, same process, same files).
@@ -126,7 +129,10 @@ fn poisson(c: &mut Criterion) {
             p.n() + p.m(),
             a.pattern().nnz(),
             a.ordering().map(|o| o.name),
-            a.orderings().iter().map(|t| format!("{}:{:.3e}", t.name, t.flops)).collect::<Vec<_>>(),
+            a.orderings()
+                .iter()
+                .map(|t| format!("{}:{:.3e}", t.name, t.flops))
+                .collect::<Vec<_>>(),
             a.is_supernodal(),
             a.factor_entries(),
             a.numeric_bytes() as f64 / (1024.0 * 1024.0),
@@ -151,7 +157,10 @@ fn crossover(c: &mut Criterion) {
     }
     let mut group = c.benchmark_group("crossover");
     group.sample_size(20);
-    for (family, ks) in [(Family::PoissonControl, &[3usize, 6, 10, 14, 20][..]), (Family::TiedLattice, &[4, 8, 12, 18][..])] {
+    for (family, ks) in [
+        (Family::PoissonControl, &[3usize, 6, 10, 14, 20][..]),
+        (Family::TiedLattice, &[4, 8, 12, 18][..]),
+    ] {
         for &k in ks {
             let p = family.problem(k).unwrap();
             let dim = p.n() + p.m();

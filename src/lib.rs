@@ -74,8 +74,10 @@
 //!
 //! ## Current state
 //!
-//! Implemented: dense LBLᵀ with equilibration, inertia, verdict, refinement; builders;
-//! Matrix Market I/O; the `tangency` command line. Not yet: sparse LDLᵀ, Schur-complement
+//! Implemented: dense LBLᵀ with equilibration, inertia, verdict, refinement; sparse LDLᵀ
+//! ([`backend::sparse_ldlt`]: AMD, regularized pivots with a confirmed inertia, symbolic
+//! reuse, allocation-free sequential refactorization); problem generators
+//! ([`generate`]); builders; Matrix Market I/O; the `tangency` command line. Not yet: Schur-complement
 //! and null-space methods, rank analysis that names dependent constraints, condition
 //! estimates and sensitivities, iterative methods (these are planned; singular KKT
 //! matrices are reported as [`Error::Singular`] without finer diagnosis for now).

@@ -4,7 +4,6 @@
 use std::alloc::{GlobalAlloc, Layout, System};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
-
 use faer::Par;
 use tangency::backend::sparse_ldlt::{SparseAnalysis, Supernodes};
 use tangency::generate::PoissonControl;
@@ -45,7 +44,12 @@ static GLOBAL: Counting = Counting;
 
 /// Same pattern, new values: another control cost α changes H; c and b are perturbed.
 fn variant(k: usize, base: &Problem, t: f64) -> Problem {
-    let mut p = PoissonControl { k, alpha: 1e-2 * (1.0 + t) }.build().unwrap();
+    let mut p = PoissonControl {
+        k,
+        alpha: 1e-2 * (1.0 + t),
+    }
+    .build()
+    .unwrap();
     let c: Vec<f64> = base.linear().iter().map(|v| v * (1.0 + t)).collect();
     let b: Vec<f64> = base.rhs().iter().map(|v| v * (1.0 - 0.5 * t) + t).collect();
     p.set_linear(&c).unwrap();
@@ -71,7 +75,8 @@ fn steady_state_allocations(k: usize, par: Par, supernodes: Supernodes, rounds: 
     let mut out = Solution::empty(base.n(), base.m(), f.backend().method());
     // Warm-up round: first use may size internal buffers.
     f.refactor(&variants[0]).unwrap();
-    f.solve_into(variants[0].linear(), variants[0].rhs(), &mut ws, &mut out).unwrap();
+    f.solve_into(variants[0].linear(), variants[0].rhs(), &mut ws, &mut out)
+        .unwrap();
     ALLOCATIONS.store(0, Ordering::SeqCst);
     COUNTING.store(true, Ordering::SeqCst);
     let mut previous = out.x[0];
@@ -96,7 +101,11 @@ fn steady_state_allocations(k: usize, par: Par, supernodes: Supernodes, rounds: 
 #[test]
 fn refactor_and_solve_do_not_allocate() {
     // Simplicial and supernodal factorizations, sequential: exactly zero.
-    for (k, supernodes) in [(6, Supernodes::Never), (30, Supernodes::Never), (30, Supernodes::Always)] {
+    for (k, supernodes) in [
+        (6, Supernodes::Never),
+        (30, Supernodes::Never),
+        (30, Supernodes::Always),
+    ] {
         let count = steady_state_allocations(k, Par::Seq, supernodes, 4);
         assert_eq!(count, 0, "poisson-control k = {k}, {supernodes:?}");
     }

@@ -114,8 +114,16 @@ fn agree_on(p: &Problem) -> tangency::Solution {
     let reference = nalgebra_solve(p);
     let (n, m) = (p.n(), p.m());
     let tol = 1e-9;
-    assert!(max_diff(&s.x, &d.x) <= tol * scale(&d.x), "x differs by {}", max_diff(&s.x, &d.x));
-    assert!(max_diff(&s.y, &d.y) <= tol * scale(&d.y), "y differs by {}", max_diff(&s.y, &d.y));
+    assert!(
+        max_diff(&s.x, &d.x) <= tol * scale(&d.x),
+        "x differs by {}",
+        max_diff(&s.x, &d.x)
+    );
+    assert!(
+        max_diff(&s.y, &d.y) <= tol * scale(&d.y),
+        "y differs by {}",
+        max_diff(&s.y, &d.y)
+    );
     assert!(max_diff(&s.x, &reference[..n]) <= tol * scale(&reference[..n]));
     assert!(max_diff(&s.y, &reference[n..n + m]) <= tol * scale(&reference[n..]));
     assert_eq!(s.inertia, d.inertia, "inertia");
@@ -150,7 +158,15 @@ fn nonconvex_known_inertia() {
     let m = 12;
     let mut h = Vec::new();
     for i in 0..n {
-        h.push((i, i, if i % 3 == 0 { -1.0 - i as f64 / n as f64 } else { 2.0 + (i % 5) as f64 }));
+        h.push((
+            i,
+            i,
+            if i % 3 == 0 {
+                -1.0 - i as f64 / n as f64
+            } else {
+                2.0 + (i % 5) as f64
+            },
+        ));
         if i + 1 < n {
             h.push((i + 1, i, 0.3));
         }
@@ -173,7 +189,11 @@ fn nonconvex_known_inertia() {
     let k = tangency::kkt::assemble_dense(&p);
     let kn = nalgebra::DMatrix::from_fn(n + m, n + m, |i, j| k[(i, j)]);
     let eig = kn.symmetric_eigenvalues();
-    let expected = Inertia::new(eig.iter().filter(|&&l| l > 0.0).count(), eig.iter().filter(|&&l| l < 0.0).count(), 0);
+    let expected = Inertia::new(
+        eig.iter().filter(|&&l| l > 0.0).count(),
+        eig.iter().filter(|&&l| l < 0.0).count(),
+        0,
+    );
     assert!(eig.iter().all(|l| l.abs() > 1e-8));
     let s = agree_on(&p);
     assert_eq!(s.inertia, Some(expected));

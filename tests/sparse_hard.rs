@@ -21,7 +21,18 @@ fn zero_hessian_rows_force_pivots_and_are_confirmed() {
     // in the objective). Unique minimizer by design: x2 = 1 − x0, x1 = x2 − 0.5.
     let p = ProblemBuilder::new()
         .hessian_triplets(4, &[(0, 0, 2.0), (1, 1, 2.0)], Triangle::Lower)
-        .constraints_triplets(3, 4, &[(0, 0, 1.0), (0, 2, 1.0), (1, 1, 1.0), (1, 2, -1.0), (1, 3, 1.0), (2, 3, 1.0)])
+        .constraints_triplets(
+            3,
+            4,
+            &[
+                (0, 0, 1.0),
+                (0, 2, 1.0),
+                (1, 1, 1.0),
+                (1, 2, -1.0),
+                (1, 3, 1.0),
+                (2, 3, 1.0),
+            ],
+        )
         .rhs(&[1.0, 0.0, 0.5])
         .build()
         .unwrap();
@@ -69,7 +80,19 @@ fn forced_pivots_without_confirmation_withhold_the_verdict() {
 fn exactly_singular_kkt_is_an_error() {
     let p = ProblemBuilder::new()
         .hessian_triplets(3, &[(0, 0, 1.0), (1, 1, 2.0), (2, 2, 3.0)], Triangle::Lower)
-        .constraints_triplets(3, 3, &[(0, 0, 1.0), (0, 1, 1.0), (1, 1, 1.0), (1, 2, 1.0), (2, 0, 1.0), (2, 1, 2.0), (2, 2, 1.0)])
+        .constraints_triplets(
+            3,
+            3,
+            &[
+                (0, 0, 1.0),
+                (0, 1, 1.0),
+                (1, 1, 1.0),
+                (1, 2, 1.0),
+                (2, 0, 1.0),
+                (2, 1, 2.0),
+                (2, 2, 1.0),
+            ],
+        )
         .rhs(&[1.0, 2.0, 3.0])
         .build()
         .unwrap();
@@ -127,7 +150,14 @@ fn badly_scaled_blocks() {
     p.set_rhs(&b).unwrap();
     let s = tangency::solve(&p, &sparse()).unwrap();
     assert!(s.backward_error <= 1e-15, "{}", s.backward_error);
-    let d = tangency::solve(&p, &Options { method: Method::Dense, ..Default::default() }).unwrap();
+    let d = tangency::solve(
+        &p,
+        &Options {
+            method: Method::Dense,
+            ..Default::default()
+        },
+    )
+    .unwrap();
     assert_eq!(s.inertia, d.inertia);
     // K is ill-conditioned by construction (cond ≈ 1e14 after scaling: curvature 1e-8
     // against 1e6), so the forward error is bounded by cond·backward error, not by ε: the
@@ -135,8 +165,16 @@ fn badly_scaled_blocks() {
     // backends alike.
     for i in 0..n {
         let tol = if i < n / 2 { 1e-3 } else { 1e-10 };
-        assert!((s.x[i] - xs[i]).abs() <= tol * xs[i].abs(), "x[{i}] = {} vs {}", s.x[i], xs[i]);
-        assert!((s.x[i] - d.x[i]).abs() <= tol * xs[i].abs(), "sparse and dense differ at x[{i}]");
+        assert!(
+            (s.x[i] - xs[i]).abs() <= tol * xs[i].abs(),
+            "x[{i}] = {} vs {}",
+            s.x[i],
+            xs[i]
+        );
+        assert!(
+            (s.x[i] - d.x[i]).abs() <= tol * xs[i].abs(),
+            "sparse and dense differ at x[{i}]"
+        );
     }
 }
 
@@ -173,7 +211,10 @@ fn refactor_and_many_right_hand_sides() {
 
 #[test]
 fn empty_problem() {
-    let p = ProblemBuilder::new().hessian_triplets(0, &[], Triangle::Lower).build().unwrap();
+    let p = ProblemBuilder::new()
+        .hessian_triplets(0, &[], Triangle::Lower)
+        .build()
+        .unwrap();
     let s = tangency::solve(&p, &sparse()).unwrap();
     assert!(s.x.is_empty() && s.y.is_empty());
     assert_eq!(s.inertia, Some(Inertia::new(0, 0, 0)));
@@ -197,7 +238,10 @@ fn cli_generate_and_solve_sparse() {
     assert!(out.status.success());
     let text = String::from_utf8_lossy(&out.stdout);
     assert_eq!(text.lines().count(), 1);
-    assert!(text.contains("\"status\":\"solved\"") && text.contains("\"method\":\"sparse\""), "{text}");
+    assert!(
+        text.contains("\"status\":\"solved\"") && text.contains("\"method\":\"sparse\""),
+        "{text}"
+    );
     assert!(text.contains("\"verdict\":\"minimizer\""), "{text}");
     // Unknown family: exit 2 with the known names.
     let out = std::process::Command::new(exe)
@@ -208,7 +252,11 @@ fn cli_generate_and_solve_sparse() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("poisson-control, tied-lattice"));
     // Unknown method lists sparse among the known ones.
-    let out = std::process::Command::new(exe).args(["solve", "--method", "lu", "--json"]).arg(dir.path()).output().unwrap();
+    let out = std::process::Command::new(exe)
+        .args(["solve", "--method", "lu", "--json"])
+        .arg(dir.path())
+        .output()
+        .unwrap();
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stdout).contains("auto, dense, sparse"));
 }

@@ -5,7 +5,9 @@
 use proptest::prelude::*;
 use tangency::{Method, Options, ProblemBuilder, Triangle, Verdict};
 
-fn problem_strategy() -> impl Strategy<Value = (usize, usize, Vec<(usize, usize, f64)>, Vec<(usize, usize, f64)>, u64)> {
+type Triplets = Vec<(usize, usize, f64)>;
+
+fn problem_strategy() -> impl Strategy<Value = (usize, usize, Triplets, Triplets, u64)> {
     (0usize..25, 0usize..8).prop_flat_map(|(n, m0)| {
         let m = if n == 0 { 0 } else { m0.min(n) };
         let offdiag = prop::collection::vec((0..n.max(1), 0..n.max(1), -1.0f64..1.0), 0..2 * n + 1);

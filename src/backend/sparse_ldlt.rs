@@ -61,8 +61,8 @@ use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
 use faer::linalg::cholesky::ldlt::factor::{LdltParams, LdltRegularization};
 use faer::sparse::linalg::amd;
 use faer::sparse::linalg::cholesky::{
-    factorize_symbolic_cholesky, supernodal::SupernodalLdltRef, CholeskySymbolicParams, LdltRef,
-    SymbolicCholesky, SymbolicCholeskyRaw, SymmetricOrdering,
+    factorize_symbolic_cholesky, supernodal::SupernodalLdltRef, CholeskySymbolicParams, LdltRef, SymbolicCholesky,
+    SymbolicCholeskyRaw, SymmetricOrdering,
 };
 use faer::sparse::linalg::SupernodalThreshold;
 use faer::{Conj, Mat, MatMut, Par, Side, Spec};
@@ -164,7 +164,10 @@ impl SparseAnalysis {
         let pattern = KktPattern::new(problem);
         let dim = pattern.dim();
         let resources = |what: &str, e: faer::sparse::FaerError| Error::Resources {
-            detail: format!("{what} for a KKT matrix of order {dim} with {} stored entries: {e:?}", pattern.nnz()),
+            detail: format!(
+                "{what} for a KKT matrix of order {dim} with {} stored entries: {e:?}",
+                pattern.nnz()
+            ),
         };
         let mut orderings = Vec::new();
         let mut best: Option<(Vec<usize>, Vec<usize>)> = None;
@@ -309,10 +312,17 @@ impl SparseLdlt {
     pub fn new(analysis: Arc<SparseAnalysis>) -> Result<SparseLdlt> {
         let dim = analysis.pattern.dim();
         let n = analysis.pattern.n();
-        let buf = MemBuffer::try_new(analysis.factor_scratch.or(analysis.symbolic.solve_in_place_scratch::<f64>(1, Par::Seq)))
-            .map_err(|_| Error::Resources {
-                detail: format!("the sparse factorization workspace ({} bytes)", analysis.factor_scratch.size_bytes()),
-            })?;
+        let buf = MemBuffer::try_new(
+            analysis
+                .factor_scratch
+                .or(analysis.symbolic.solve_in_place_scratch::<f64>(1, Par::Seq)),
+        )
+        .map_err(|_| Error::Resources {
+            detail: format!(
+                "the sparse factorization workspace ({} bytes)",
+                analysis.factor_scratch.size_bytes()
+            ),
+        })?;
         Ok(SparseLdlt {
             values: vec![0.0; analysis.pattern.nnz()],
             scale: vec![1.0; dim],

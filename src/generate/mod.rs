@@ -77,7 +77,9 @@ pub fn write_family(family: Family, k: usize, dir: impl AsRef<Path>) -> Result<P
 
 pub(crate) fn check_size(k: usize, min: usize, max: usize) -> Result<()> {
     if k < min || k > max {
-        return Err(Error::InvalidOption(format!("size {k} is outside the supported range {min}..={max}")));
+        return Err(Error::InvalidOption(format!(
+            "size {k} is outside the supported range {min}..={max}"
+        )));
     }
     Ok(())
 }
