@@ -79,7 +79,8 @@
 //! ## Current state
 //!
 //! Implemented: dense LBLᵀ with equilibration, inertia, verdict, refinement; sparse LDLᵀ
-//! with a fill-reducing ordering, regularized pivots and allocation-free refactorization;
+//! with a fill-reducing ordering, regularized pivots with a confirmed inertia and
+//! allocation-free sequential refactorization; problem generators ([`generate`]);
 //! Schur-complement and null-space methods with an auto cost model; rank analysis that names
 //! dependent constraints; condition estimates, backward errors and sensitivities
 //! ([`diagnostics`]); stage-wise (optimal control) problems with a typed horizon builder and

@@ -518,6 +518,13 @@ impl Factorization {
                  K is ill-conditioned, trust fewer digits"
             ));
         }
+        if !self.backend.inertia_certified() && self.backend.regularized_pivots() > 0 {
+            out.notes.push(format!(
+                "verdict unverified: {} pivot(s) were regularized (sign imposed) and the inertia could not be \
+                 confirmed; the inertia shown is that of the regularized factorization",
+                self.backend.regularized_pivots()
+            ));
+        }
         if regularized_but_inaccurate && verdict.is_some() {
             out.notes.push(format!(
                 "verdict withheld: {} pivot(s) were regularized and refinement did not reach machine precision",

@@ -272,3 +272,21 @@ fn cli_generate_and_solve_sparse() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stdout).contains("auto, dense, sparse"));
 }
+
+/// The k = 300 Poisson-control problem (N = 270 000): backward error at most 1e-14 and a
+/// refactorization on the same pattern. Large: run with
+/// `cargo test --release --test sparse_hard -- --ignored`.
+#[test]
+#[ignore]
+fn poisson_control_k300() {
+    let p = PoissonControl::new(300).build().unwrap();
+    let plan = Plan::analyze(&p, &sparse()).unwrap();
+    let mut f = plan.factor(&p).unwrap();
+    let s = f.solve().unwrap();
+    assert!(s.backward_error <= 1e-14, "{}", s.backward_error);
+    assert_eq!(s.verdict, Some(Verdict::Minimizer));
+    let q = PoissonControl { k: 300, alpha: 0.05 }.build().unwrap();
+    f.refactor(&q).unwrap();
+    let s = f.solve().unwrap();
+    assert!(s.backward_error <= 1e-14, "{}", s.backward_error);
+}

@@ -11,8 +11,9 @@
 //!   refactorization.
 //! * **Numeric factorization** ([`KktBackend::factor`]): scatter the new values through the
 //!   map, Ruiz-equilibrate (`K̃ = S K S`), LDLᵀ of `P K̃ Pᵀ` into preallocated storage. No heap
-//!   allocation in the steady state (see `tests/alloc_free.rs`), except the small inertia
-//!   confirmation below when pivots had to be regularized.
+//!   allocation in the steady state with `par = Par::Seq` (see `tests/alloc_free.rs`),
+//!   except the small inertia confirmation below when pivots had to be regularized. With a
+//!   rayon pool, rayon's scheduler allocates job-queue blocks of its own.
 //! * **Solve**: `K⁻¹r = S (LDLᵀ)⁻¹ S r` (permutations inside), refined by the caller on the
 //!   original K.
 //!
