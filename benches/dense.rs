@@ -3,7 +3,7 @@
 //! run by `scripts/compare_dense.sh` (see the README's Performance section).
 
 use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion};
-use tangency::{Options, Plan};
+use tangency::{Method, Options, Plan};
 
 #[path = "dense_problems.rs"]
 mod dense_problems;
@@ -14,7 +14,14 @@ fn dense(c: &mut Criterion) {
     for &total in &[650usize, 2000, 4000] {
         for convex in [true, false] {
             let p = dense_problems::problem(total, convex, 42);
-            let plan = Plan::analyze(&p, &Options::default()).unwrap();
+            let plan = Plan::analyze(
+                &p,
+                &Options {
+                    method: Method::Dense,
+                    ..Default::default()
+                },
+            )
+            .unwrap();
             let label = if convex { "convex" } else { "indefinite" };
             group.bench_with_input(BenchmarkId::new(label, total), &p, |bench, p| {
                 bench.iter(|| {

@@ -9,7 +9,7 @@
 mod dense_problems;
 
 use std::time::Instant;
-use tangency::{io, Options, Plan};
+use tangency::{io, Method, Options, Plan};
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
     let mut args = std::env::args().skip(1);
@@ -21,7 +21,13 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             let p = dense_problems::problem(total, convex, 42);
             let dir = std::path::Path::new(&out).join(&name);
             io::write_problem_dir(&p, &dir)?;
-            let plan = Plan::analyze(&p, &Options::default())?;
+            let plan = Plan::analyze(
+                &p,
+                &Options {
+                    method: Method::Dense,
+                    ..Default::default()
+                },
+            )?;
             let mut times = Vec::new();
             let mut be = 0.0;
             for _ in 0..repeats {
