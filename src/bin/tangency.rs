@@ -92,6 +92,16 @@ enum Command {
     },
 }
 
+/// The one-line human message on stderr for an outcome without a result.
+fn print_error(err: &Error) {
+    let kind = if err.is_no_solution() {
+        "no solution"
+    } else {
+        "invalid input"
+    };
+    eprintln!("tangency: {kind}: {err}");
+}
+
 fn exit_code(err: &Error) -> u8 {
     if err.is_no_solution() {
         3
@@ -155,14 +165,7 @@ fn fit(dir: &std::path::Path, out: Option<&std::path::Path>, json: bool) -> Exit
         if json {
             println!("{}", fit_error_json(&err, sizes));
         } else {
-            eprintln!(
-                "tangency: {}: {err}",
-                if err.is_no_solution() {
-                    "no solution"
-                } else {
-                    "invalid input"
-                }
-            );
+            print_error(&err);
         }
         ExitCode::from(exit_code(&err))
     };
@@ -250,14 +253,7 @@ fn solve(
             o.set("condition_estimate", kappa.filter(|k| k.is_finite()));
             println!("{o}");
         } else {
-            eprintln!(
-                "tangency: {}: {err}",
-                if err.is_no_solution() {
-                    "no solution"
-                } else {
-                    "invalid input"
-                }
-            );
+            print_error(&err);
         }
         ExitCode::from(exit_code(&err))
     };

@@ -24,12 +24,19 @@ use crate::error::{Block, Error, Result};
 use crate::problem::{Problem, ProblemBuilder, Triangle};
 
 /// One matrix read from a file, with whether it was stored densely.
-struct Loaded {
-    coo: CooMatrix<f64>,
-    dense: bool,
+pub(crate) struct Loaded {
+    pub(crate) coo: CooMatrix<f64>,
+    pub(crate) dense: bool,
 }
 
 fn read(path: &Path, block: Block) -> Result<Option<Loaded>> {
+    read_matrix(path, |text| locate_out_of_range(text, block, path))
+}
+
+/// Reads one Matrix Market file through nalgebra-sparse's parser; `Ok(None)` when the
+/// file does not exist. When the parser fails, `locate` may turn the file's text into a
+/// more precise error (the parser does not say where an index is out of range).
+pub(crate) fn read_matrix(path: &Path, locate: impl Fn(&str) -> Option<Error>) -> Result<Option<Loaded>> {
     let text = match std::fs::read_to_string(path) {
         Ok(t) => t,
         Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
@@ -49,7 +56,7 @@ fn read(path: &Path, block: Block) -> Result<Option<Loaded>> {
     }
     let dense = header.split_whitespace().any(|w| w == "array");
     let coo = load_coo_from_matrix_market_str::<f64>(&text).map_err(|e| {
-        locate_out_of_range(&text, block, path).unwrap_or_else(|| Error::Parse {
+        locate(&text).unwrap_or_else(|| Error::Parse {
             path: path.to_path_buf(),
             message: format!("{:?}: {}", e.kind(), e.message()),
         })
@@ -114,11 +121,11 @@ fn vector(path: &Path, loaded: Option<Loaded>, block: Block) -> Result<Option<Ve
     Ok(Some(v))
 }
 
-fn triplets(coo: &CooMatrix<f64>) -> Vec<(usize, usize, f64)> {
+pub(crate) fn triplets(coo: &CooMatrix<f64>) -> Vec<(usize, usize, f64)> {
     coo.triplet_iter().map(|(i, j, v)| (i, j, *v)).collect()
 }
 
-fn dense(coo: &CooMatrix<f64>) -> Mat<f64> {
+pub(crate) fn dense(coo: &CooMatrix<f64>) -> Mat<f64> {
     let mut m = Mat::zeros(coo.nrows(), coo.ncols());
     for (i, j, v) in coo.triplet_iter() {
         m[(i, j)] += *v;

@@ -13,42 +13,13 @@
 
 use std::path::Path;
 
-use faer::Mat;
-use nalgebra_sparse::io::load_coo_from_matrix_market_str;
-use nalgebra_sparse::CooMatrix;
-
 use super::{FitBlock, LsqBuilder, LsqProblem};
 use crate::error::{Error, Result};
 
-struct Loaded {
-    coo: CooMatrix<f64>,
-    dense: bool,
-}
+use crate::io::{dense, read_matrix, triplets, Loaded};
 
 fn read(path: &Path) -> Result<Option<Loaded>> {
-    let text = match std::fs::read_to_string(path) {
-        Ok(t) => t,
-        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
-        Err(source) => {
-            return Err(Error::Io {
-                path: path.to_path_buf(),
-                source,
-            })
-        }
-    };
-    let header = text.lines().next().unwrap_or("").to_ascii_lowercase();
-    if !header.starts_with("%%matrixmarket") {
-        return Err(Error::Parse {
-            path: path.to_path_buf(),
-            message: "not a Matrix Market file: the first line must start with %%MatrixMarket".into(),
-        });
-    }
-    let dense = header.split_whitespace().any(|w| w == "array");
-    let coo = load_coo_from_matrix_market_str::<f64>(&text).map_err(|e| Error::Parse {
-        path: path.to_path_buf(),
-        message: format!("{:?}: {}", e.kind(), e.message()),
-    })?;
-    Ok(Some(Loaded { coo, dense }))
+    read_matrix(path, |_| None)
 }
 
 fn vector(path: &Path, block: FitBlock) -> Result<Option<Vec<f64>>> {
@@ -68,18 +39,6 @@ fn vector(path: &Path, block: FitBlock) -> Result<Option<Vec<f64>>> {
         v[i.max(j)] += *x;
     }
     Ok(Some(v))
-}
-
-fn dense(coo: &CooMatrix<f64>) -> Mat<f64> {
-    let mut m = Mat::zeros(coo.nrows(), coo.ncols());
-    for (i, j, v) in coo.triplet_iter() {
-        m[(i, j)] += *v;
-    }
-    m
-}
-
-fn triplets(coo: &CooMatrix<f64>) -> Vec<(usize, usize, f64)> {
-    coo.triplet_iter().map(|(i, j, v)| (i, j, *v)).collect()
 }
 
 /// Reads a fit directory (see the module docs for the layout).
