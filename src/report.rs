@@ -173,6 +173,10 @@ pub fn solution_json(problem: &Problem, s: &Solution) -> Json {
         "notes",
         Json::Arr(s.notes.iter().map(|n| Json::from(n.as_str())).collect()),
     );
+    o.set(
+        "null_direction",
+        s.null_direction.as_deref().map_or(Json::Null, Json::from),
+    );
     o
 }
 
@@ -192,6 +196,21 @@ pub fn error_json(err: &Error, sizes: Option<(usize, usize)>, method: Option<&st
         o.set(key, Json::Null);
     }
     o.set("message", err.to_string());
+    // The evidence behind a no-solution status, for tools.
+    match err {
+        Error::Infeasible { rows, gap, .. } => {
+            o.set(
+                "contradicting_rows",
+                Json::Arr(rows.iter().map(|r| Json::from(*r)).collect()),
+            );
+            o.set("contradiction", *gap);
+        }
+        Error::Unbounded { direction, slope, .. } => {
+            o.set("direction", direction.as_slice());
+            o.set("slope", *slope);
+        }
+        _ => {}
+    }
     o
 }
 

@@ -247,6 +247,48 @@ fn dependent_constraint_rows_redundant_or_contradictory() {
     );
 }
 
+/// A flat direction: H = diag(1, 0) with no constraints. With c = 0 every x = (0, t) is a
+/// minimizer (non-unique, exit 0, the flat direction reported); with c = (0, −1) the
+/// objective decreases without bound along it (unbounded, exit 3, the direction reported).
+#[test]
+fn flat_direction_non_unique_or_unbounded() {
+    let dir = tempfile::tempdir().unwrap();
+    write(
+        dir.path(),
+        "H.mtx",
+        "%%MatrixMarket matrix coordinate real symmetric\n2 2 1\n1 1 1\n",
+    );
+    let (code, stdout, _) = run(&["solve", dir.path().to_str().unwrap(), "--json"]);
+    assert_eq!(code, 0, "{stdout}");
+    let j = json(&stdout);
+    assert_eq!(j["status"], "solved");
+    assert_eq!(j["verdict"], "non_unique");
+    let d: Vec<f64> = j["null_direction"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    assert!(d[0].abs() < 1e-12 && (d[1].abs() - 1.0).abs() < 1e-12, "{d:?}");
+    write(dir.path(), "c.mtx", &dense_vec(&[0.0, -1.0]));
+    let (code, stdout, _) = run(&["solve", dir.path().to_str().unwrap(), "--json"]);
+    assert_eq!(code, 3, "{stdout}");
+    let j = json(&stdout);
+    assert_eq!(j["status"], "unbounded");
+    assert!(j["verdict"].is_null());
+    let d: Vec<f64> = j["direction"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    // Along d the objective decreases: c·d < 0 and H d = 0.
+    assert!(
+        d[0].abs() < 1e-12 && -d[1] < 0.0 && j["slope"].as_f64().unwrap() < 0.0,
+        "{d:?}"
+    );
+}
+
 /// Every bad-input path through the command line: exit 2, one JSON object, a message that
 /// names the file, block and position.
 #[test]
