@@ -95,6 +95,7 @@ pub mod diagnostics;
 pub mod error;
 pub mod generate;
 pub mod io;
+pub mod iterative;
 pub mod kkt;
 pub mod lsq;
 pub mod problem;
