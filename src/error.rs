@@ -295,6 +295,27 @@ pub enum Error {
         /// The diagnosis in words.
         detail: String,
     },
+    /// An iterative method stopped at its iteration limit before meeting its tolerance
+    /// (CLI exit code 4, status `not_converged`). Recover by raising the limit, loosening the
+    /// tolerance or using a stronger preconditioner (or a direct method).
+    #[error(
+        "{method} did not converge: {iterations} iteration(s), relative preconditioned residual {residual:.3e} \
+         (tolerance {tolerance:.1e}), true relative residual {true_residual:.3e}"
+    )]
+    NotConverged {
+        /// The iterative method (`"minres"`).
+        method: &'static str,
+        /// Iterations taken.
+        iterations: usize,
+        /// Relative residual reached in the method's own (preconditioned) norm.
+        residual: f64,
+        /// Relative residual `‖rhs − Kz‖₂ / ‖rhs‖₂` of the last iterate on the original K.
+        true_residual: f64,
+        /// The tolerance asked for.
+        tolerance: f64,
+        /// The last (at most 10) relative preconditioned residuals, oldest first.
+        history_tail: Vec<f64>,
+    },
 }
 
 fn fit_position(row: Option<usize>, col: Option<usize>) -> String {
@@ -309,7 +330,12 @@ fn fit_position(row: Option<usize>, col: Option<usize>) -> String {
 impl Error {
     /// True for errors caused by malformed input (CLI exit code 2).
     pub fn is_invalid_input(&self) -> bool {
-        !self.is_no_solution()
+        !self.is_no_solution() && !self.is_not_converged()
+    }
+
+    /// True when an iterative method hit its iteration limit (CLI exit code 4).
+    pub fn is_not_converged(&self) -> bool {
+        matches!(self, Error::NotConverged { .. })
     }
 
     /// True for well-formed problems without a trustworthy solution (CLI exit code 3).
@@ -332,6 +358,7 @@ impl Error {
             Error::Infeasible { .. } | Error::FitContradictory { .. } => "infeasible",
             Error::Unbounded { .. } => "unbounded",
             Error::FitNonUnique { .. } => "singular",
+            Error::NotConverged { .. } => "not_converged",
             _ => "invalid_input",
         }
     }

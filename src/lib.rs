@@ -85,7 +85,8 @@
 //! dependent constraints; condition estimates, backward errors and sensitivities
 //! ([`diagnostics`]); stage-wise (optimal control) problems with a typed horizon builder and
 //! the Riccati-recursion backend ([`stagewise`]); builders; Matrix Market I/O; the
-//! `tangency` command line. Not yet: iterative methods (MINRES, projected CG). The Schur and
+//! `tangency` command line; preconditioned MINRES on assembled or matrix-free operators
+//! ([`iterative`]). Not yet: projected CG. The Schur and
 //! null-space methods and the rank analysis work on dense copies of `H` and `A`.
 #![deny(missing_docs)]
 
@@ -95,6 +96,7 @@ pub mod diagnostics;
 pub mod error;
 pub mod generate;
 pub mod io;
+pub mod iterative;
 pub mod kkt;
 pub mod lsq;
 pub mod problem;

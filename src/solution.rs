@@ -89,6 +89,8 @@ pub enum MethodUsed {
     NullSpace,
     /// Sparse LDLᵀ with a fill-reducing ordering and regularized pivots.
     SparseLdlt,
+    /// Preconditioned MINRES (iterative; inertia not observed), see [`crate::iterative`].
+    Minres,
 }
 
 impl MethodUsed {
@@ -100,6 +102,7 @@ impl MethodUsed {
             MethodUsed::Schur => "schur",
             MethodUsed::NullSpace => "nullspace",
             MethodUsed::SparseLdlt => "sparse",
+            MethodUsed::Minres => "minres",
         }
     }
 }

@@ -31,7 +31,8 @@ enum Command {
         dir: PathBuf,
         /// Factorization method: auto, dense (LBLᵀ), sparse (regularized sparse LDLᵀ), schur
         /// (Cholesky of H and A H⁻¹ Aᵀ, convex problems), nullspace (QR of Aᵀ, reduced
-        /// Hessian) or riccati (stage-wise recursion; needs --stages).
+        /// Hessian) or riccati (stage-wise recursion; needs --stages); or the iterative
+        /// minres (preconditioned MINRES; see --tol, --max-iter, --schur-block).
         #[arg(long, default_value = "auto")]
         method: String,
         /// Stage dimensions NX,NU,N for --method riccati (required with it).
@@ -43,6 +44,16 @@ enum Command {
         /// Print exactly one JSON object on stdout (whatever the outcome).
         #[arg(long)]
         json: bool,
+        /// For --method minres: relative tolerance of the preconditioned KKT residual.
+        #[arg(long, default_value_t = tangency::iterative::DEFAULT_TOLERANCE)]
+        tol: f64,
+        /// For --method minres: iteration limit (exit 4 when reached).
+        #[arg(long, default_value_t = tangency::iterative::DEFAULT_MAX_ITER)]
+        max_iter: usize,
+        /// For --method minres: second preconditioner block, cholesky (sparse Cholesky of
+        /// A diag(H)⁻¹ Aᵀ) or diagonal (its diagonal).
+        #[arg(long, default_value = "cholesky")]
+        schur_block: String,
         /// Also report how the optimal objective moves with b and c (df/db = −y, df/dc = x).
         #[arg(long)]
         sensitivity: bool,
@@ -96,6 +107,8 @@ enum Command {
 fn print_error(err: &Error) {
     let kind = if err.is_no_solution() {
         "no solution"
+    } else if err.is_not_converged() {
+        "not converged"
     } else {
         "invalid input"
     };
@@ -105,6 +118,8 @@ fn print_error(err: &Error) {
 fn exit_code(err: &Error) -> u8 {
     if err.is_no_solution() {
         3
+    } else if err.is_not_converged() {
+        4
     } else {
         2
     }
@@ -151,8 +166,17 @@ fn main() -> ExitCode {
             stages,
             out,
             json,
+            tol,
+            max_iter,
+            schur_block,
             sensitivity,
-        } => solve(&dir, &method, stages.as_deref(), out.as_deref(), json, sensitivity),
+        } => {
+            if method == "minres" {
+                solve_iterative(&dir, tol, max_iter, &schur_block, out.as_deref(), json)
+            } else {
+                solve(&dir, &method, stages.as_deref(), out.as_deref(), json, sensitivity)
+            }
+        }
         Command::Inspect { dir, json } => inspect(&dir, json),
         Command::Generate { family, size, out } => generate(&family, size, &out),
         Command::Fit { dir, out, json } => fit(&dir, out.as_deref(), json),
@@ -259,6 +283,10 @@ fn solve(
     };
     let method: Method = match method.parse() {
         Ok(m) => m,
+        Err(Error::InvalidOption(msg)) => {
+            let msg = format!("{msg}; iterative: minres");
+            return fail(Error::InvalidOption(msg), None, None, None, None);
+        }
         Err(e) => return fail(e, None, None, None, None),
     };
     let stages: Option<tangency::stagewise::StageDims> = match (method, stages) {
@@ -360,6 +388,90 @@ fn solve(
                 out.join("multipliers.mtx").display()
             );
         }
+    }
+    ExitCode::SUCCESS
+}
+
+/// `solve --method minres`: the iterative path (inertia and verdict are not observed).
+fn solve_iterative(
+    dir: &std::path::Path,
+    tol: f64,
+    max_iter: usize,
+    schur_block: &str,
+    out: Option<&std::path::Path>,
+    json: bool,
+) -> ExitCode {
+    use tangency::iterative::{self, history_tail, IterativeOptions, SecondBlock, HISTORY_TAIL};
+    let fail = |err: Error, sizes: Option<(usize, usize)>| {
+        if json {
+            let mut o = error_json(&err, sizes, Some("minres"), None);
+            if let Error::NotConverged {
+                iterations,
+                history_tail,
+                ..
+            } = &err
+            {
+                o.set("iterations", *iterations);
+                o.set("residual_history_tail", &history_tail[..]);
+            }
+            println!("{o}");
+        } else {
+            print_error(&err);
+        }
+        ExitCode::from(exit_code(&err))
+    };
+    let second = match schur_block {
+        "cholesky" => SecondBlock::Cholesky,
+        "diagonal" => SecondBlock::Diagonal,
+        other => {
+            return fail(
+                Error::InvalidOption(format!("unknown --schur-block '{other}'; known: cholesky, diagonal")),
+                None,
+            )
+        }
+    };
+    let problem = match io::read_problem_dir(dir) {
+        Ok(p) => p,
+        Err(e) => return fail(e, None),
+    };
+    let sizes = Some((problem.n(), problem.m()));
+    let options = IterativeOptions {
+        tol,
+        max_iter,
+        second,
+        ..Default::default()
+    };
+    let result = match iterative::solve(&problem, &options) {
+        Ok(r) => r,
+        Err(e) => return fail(e, sizes),
+    };
+    let solution = &result.solution;
+    if let Some(out) = out {
+        let written = std::fs::create_dir_all(out)
+            .map_err(|source| Error::Io {
+                path: out.to_path_buf(),
+                source,
+            })
+            .and_then(|_| io::write_vector(out.join("x.mtx"), &solution.x))
+            .and_then(|_| io::write_vector(out.join("multipliers.mtx"), &solution.y));
+        if let Err(e) = written {
+            return fail(e, sizes);
+        }
+    }
+    let tail = history_tail(&result.residual_history, HISTORY_TAIL);
+    if json {
+        let mut o = solution_json(&problem, solution);
+        o.set("iterations", result.iterations);
+        o.set("residual_history_tail", tail);
+        o.set("relative_residual", result.relative_residual);
+        println!("{o}");
+    } else {
+        print!("{}", human(&problem, solution));
+        println!(
+            "  iterations  {} (MINRES); true relative residual ‖rhs−Kz‖₂/‖rhs‖₂ {:.2e}",
+            result.iterations, result.relative_residual
+        );
+        println!("  not verified: inertia of K and the kind of stationary point (minimizer or saddle)");
     }
     ExitCode::SUCCESS
 }

@@ -1,0 +1,172 @@
+//! Iterative (Krylov) solution of the KKT system: preconditioned MINRES with block-diagonal
+//! preconditioners, on assembled or matrix-free operators.
+//!
+//! ```
+//! use tangency::iterative::{self, IterativeOptions};
+//! use tangency::generate::PoissonControl;
+//! let p = PoissonControl::new(10).build()?;
+//! let out = iterative::solve(&p, &IterativeOptions::default())?;
+//! assert!(out.iterations <= 10);
+//! assert!(out.solution.inertia.is_none() && out.solution.verdict.is_none());
+//! # Ok::<(), tangency::Error>(())
+//! ```
+//!
+//! Iterative methods do not see the inertia of `K`: the [`Solution`] they return has
+//! `inertia` and `verdict` set to `None` (not verified). Its residuals and backward error are
+//! recomputed on the original `K`.
+
+use std::time::Instant;
+
+use crate::error::{Error, Result};
+use crate::kkt;
+use crate::problem::Problem;
+use crate::solution::{MethodUsed, Solution, Timing};
+
+pub mod minres;
+pub mod operator;
+pub mod precond;
+
+pub use minres::{minres, MinresOutcome};
+pub use operator::{FnOperator, KktOperator, MatrixPair};
+pub use precond::{
+    BlockDiagonal, BlockSolve, CholeskyBlock, DiagonalBlock, FirstBlock, Identity, Preconditioner, SecondBlock,
+};
+
+/// Default relative tolerance of the preconditioned residual: `1e-10`.
+pub const DEFAULT_TOLERANCE: f64 = 1e-10;
+/// Default iteration limit: 1000.
+pub const DEFAULT_MAX_ITER: usize = 1000;
+
+/// Length of the residual-history tail reported by the command line and in
+/// [`Error::NotConverged`]: 10.
+pub const HISTORY_TAIL: usize = 10;
+
+/// The last `len` entries of a residual history.
+pub fn history_tail(history: &[f64], len: usize) -> &[f64] {
+    &history[history.len().saturating_sub(len)..]
+}
+
+/// Settings of [`solve`].
+#[derive(Clone, Debug)]
+pub struct IterativeOptions {
+    /// Relative tolerance: stop when `‖r‖_{P⁻¹} ≤ tol·‖rhs‖_{P⁻¹}` (see [`minres`]).
+    pub tol: f64,
+    /// Iteration limit; reaching it gives [`Error::NotConverged`].
+    pub max_iter: usize,
+    /// First preconditioner block (≈ H).
+    pub first: FirstBlock,
+    /// Second preconditioner block (≈ A H⁻¹ Aᵀ).
+    pub second: SecondBlock,
+    /// Warm start `[x; y]` (length n + m), if any.
+    pub warm_start: Option<Vec<f64>>,
+}
+
+impl Default for IterativeOptions {
+    /// Tolerance 1e-10, 1000 iterations, Jacobi `P₁`, sparse-Cholesky `P₂`.
+    fn default() -> Self {
+        IterativeOptions {
+            tol: DEFAULT_TOLERANCE,
+            max_iter: DEFAULT_MAX_ITER,
+            first: FirstBlock::Jacobi,
+            second: SecondBlock::Cholesky,
+            warm_start: None,
+        }
+    }
+}
+
+/// An iterative solution with the Krylov figures.
+#[derive(Clone, Debug)]
+pub struct IterativeSolution {
+    /// The point, multipliers and certificate (inertia and verdict `None`).
+    pub solution: Solution,
+    /// Iterations taken.
+    pub iterations: usize,
+    /// Relative preconditioned residuals, one per iteration (index 0: the start).
+    pub residual_history: Vec<f64>,
+    /// True relative residual `‖rhs − Kz‖₂ / ‖rhs‖₂` on the original `K`.
+    pub relative_residual: f64,
+}
+
+/// Solves the KKT system of `problem` by MINRES with the block-diagonal preconditioner of
+/// `options`. Non-convergence within `max_iter` is [`Error::NotConverged`].
+pub fn solve(problem: &Problem, options: &IterativeOptions) -> Result<IterativeSolution> {
+    if !(options.tol > 0.0 && options.tol < 1.0) {
+        return Err(Error::InvalidOption(format!(
+            "--tol must lie in (0, 1), got {}",
+            options.tol
+        )));
+    }
+    let t0 = Instant::now();
+    let precond = BlockDiagonal::from_problem(problem, options.first, options.second)?;
+    let factor_s = t0.elapsed().as_secs_f64();
+    let t1 = Instant::now();
+    let rhs = kkt::rhs(problem.linear(), problem.rhs());
+    let out = minres(
+        problem,
+        &precond,
+        &rhs,
+        options.warm_start.as_deref(),
+        options.tol,
+        options.max_iter,
+    )?;
+    let solve_s = t1.elapsed().as_secs_f64();
+    finish(problem, &rhs, out, options, factor_s, solve_s)
+}
+
+/// Builds the certified [`IterativeSolution`] (or [`Error::NotConverged`]) from a MINRES
+/// outcome on `problem`'s KKT system.
+pub fn finish(
+    problem: &Problem,
+    rhs: &[f64],
+    out: MinresOutcome,
+    options: &IterativeOptions,
+    factor_s: f64,
+    solve_s: f64,
+) -> Result<IterativeSolution> {
+    let n = problem.n();
+    let mut r = vec![0.0; rhs.len()];
+    kkt::residual(problem, &out.z, rhs, &mut r);
+    let norm2 = |v: &[f64]| v.iter().map(|x| x * x).sum::<f64>().sqrt();
+    let rn = norm2(rhs);
+    let relative_residual = if rn > 0.0 { norm2(&r) / rn } else { norm2(&r) };
+    if !out.converged {
+        return Err(Error::NotConverged {
+            method: "minres",
+            iterations: out.iterations,
+            residual: out.history.last().copied().unwrap_or(f64::NAN),
+            true_residual: relative_residual,
+            tolerance: options.tol,
+            history_tail: history_tail(&out.history, HISTORY_TAIL).to_vec(),
+        });
+    }
+    let norm_k = kkt::norm_inf(problem);
+    let backward_error = crate::solver::normwise(&r, norm_k, &out.z, rhs);
+    let (x, y) = out.z.split_at(n);
+    let (primal_residual, dual_residual) = problem.residuals(x, y);
+    let mut s = Solution::empty(n, problem.m(), MethodUsed::Minres);
+    s.x.copy_from_slice(x);
+    s.y.copy_from_slice(y);
+    s.objective = problem.objective(x);
+    s.primal_residual = primal_residual;
+    s.dual_residual = dual_residual;
+    s.backward_error = backward_error;
+    s.timing = Timing {
+        analyze_s: 0.0,
+        factor_s,
+        solve_s,
+    };
+    s.notes.push(format!(
+        "MINRES: {} iteration(s), relative preconditioned residual {:.2e} (tolerance {:.1e}), true relative residual {:.2e}; \
+         inertia and verdict NOT verified (an iterative method does not see the inertia of K)",
+        out.iterations,
+        out.history.last().copied().unwrap_or(0.0),
+        options.tol,
+        relative_residual
+    ));
+    Ok(IterativeSolution {
+        solution: s,
+        iterations: out.iterations,
+        residual_history: out.history,
+        relative_residual,
+    })
+}
