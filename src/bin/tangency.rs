@@ -103,6 +103,16 @@ enum Command {
     },
 }
 
+/// Creates `out` and writes two vectors into it as Matrix Market arrays.
+fn write_pair(out: &std::path::Path, first: (&str, &[f64]), second: (&str, &[f64])) -> Result<(), Error> {
+    std::fs::create_dir_all(out).map_err(|source| Error::Io {
+        path: out.to_path_buf(),
+        source,
+    })?;
+    io::write_vector(out.join(first.0), first.1)?;
+    io::write_vector(out.join(second.0), second.1)
+}
+
 /// The one-line human message on stderr for an outcome without a result.
 fn print_error(err: &Error) {
     let kind = if err.is_no_solution() {
@@ -203,13 +213,11 @@ fn fit(dir: &std::path::Path, out: Option<&std::path::Path>, json: bool) -> Exit
         Err(e) => return fail(e, sizes),
     };
     if let Some(out) = out {
-        let written = std::fs::create_dir_all(out)
-            .map_err(|source| Error::Io {
-                path: out.to_path_buf(),
-                source,
-            })
-            .and_then(|_| io::write_vector(out.join("coefficients.mtx"), &result.coefficients))
-            .and_then(|_| io::write_vector(out.join("multipliers.mtx"), &result.multipliers));
+        let written = write_pair(
+            out,
+            ("coefficients.mtx", &result.coefficients),
+            ("multipliers.mtx", &result.multipliers),
+        );
         if let Err(e) = written {
             return fail(e, sizes);
         }
@@ -343,13 +351,7 @@ fn solve(
         Err(e) => return fail(e, sizes, Some(used), factorization.inertia(), kappa),
     };
     if let Some(out) = out {
-        let written = std::fs::create_dir_all(out)
-            .map_err(|source| Error::Io {
-                path: out.to_path_buf(),
-                source,
-            })
-            .and_then(|_| io::write_vector(out.join("x.mtx"), &solution.x))
-            .and_then(|_| io::write_vector(out.join("multipliers.mtx"), &solution.y));
+        let written = write_pair(out, ("x.mtx", &solution.x), ("multipliers.mtx", &solution.y));
         if let Err(e) = written {
             return fail(e, sizes, Some(used), solution.inertia, kappa);
         }
@@ -447,13 +449,7 @@ fn solve_iterative(
     };
     let solution = &result.solution;
     if let Some(out) = out {
-        let written = std::fs::create_dir_all(out)
-            .map_err(|source| Error::Io {
-                path: out.to_path_buf(),
-                source,
-            })
-            .and_then(|_| io::write_vector(out.join("x.mtx"), &solution.x))
-            .and_then(|_| io::write_vector(out.join("multipliers.mtx"), &solution.y));
+        let written = write_pair(out, ("x.mtx", &solution.x), ("multipliers.mtx", &solution.y));
         if let Err(e) = written {
             return fail(e, sizes);
         }
