@@ -9,6 +9,9 @@
 
 use std::process::Command;
 
+#[path = "lsq_sparse_design.rs"]
+mod lsq_sparse_design;
+
 use criterion::{criterion_group, criterion_main, Criterion};
 use tangency::lsq::{FitMethod, FitOptions, LsqBuilder, LsqProblem};
 
@@ -158,28 +161,7 @@ fn sparse(c: &mut Criterion) {
         println!("sparse lsq bench skipped: the analysis still picks the dense KKT backend for sparse input");
         return;
     }
-    let (p, n, q) = (1_000_000, 10_000, 20);
-    let mut rng = Rng(77);
-    let mut trip = Vec::with_capacity(3 * p);
-    for i in 0..p {
-        let j = i % n;
-        trip.push((i, j, 1.0 + rng.int(9) / 10.0));
-        trip.push((i, (j + 1) % n, rng.int(9) / 10.0));
-        trip.push((i, (i * 7919) % n, rng.int(9) / 10.0));
-    }
-    let g: Vec<f64> = (0..p).map(|_| rng.int(100) / 10.0).collect();
-    let mut ct = Vec::new();
-    for i in 0..q {
-        for j in (i * (n / q))..((i + 1) * (n / q)) {
-            ct.push((i, j, 1.0));
-        }
-    }
-    let pr = LsqBuilder::new()
-        .design_triplets(p, n, &trip)
-        .observations(&g)
-        .restrictions_triplets(q, n, &ct)
-        .build()
-        .unwrap();
+    let pr = lsq_sparse_design::problem(1_000_000, 10_000, 20);
     let opts = FitOptions {
         method: FitMethod::Augmented,
         augmented_covariance_max_n: 0,
