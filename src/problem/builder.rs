@@ -326,7 +326,12 @@ impl ProblemBuilder<HasHessian> {
         check_vector(Block::C, &c, n)?;
         let b = self.b.unwrap_or_else(|| vec![0.0; m]);
         check_vector(Block::B, &b, m)?;
-        Ok(Problem { h, a, c, b })
+        Ok(Problem {
+            h: std::sync::Arc::new(h),
+            a: std::sync::Arc::new(a),
+            c,
+            b,
+        })
     }
 }
 

@@ -11,6 +11,8 @@ mod storage;
 pub use builder::{HasHessian, NoHessian, ProblemBuilder, Triangle, DEFAULT_SYMMETRY_TOLERANCE};
 pub use storage::Matrix;
 
+use std::sync::Arc;
+
 use crate::error::{Block, Error, Result};
 
 /// A validated equality-constrained quadratic program.
@@ -29,8 +31,10 @@ use crate::error::{Block, Error, Result};
 /// ```
 #[derive(Clone, Debug)]
 pub struct Problem {
-    pub(crate) h: Matrix,
-    pub(crate) a: Matrix,
+    // Shared: factorizations keep a copy of the problem they factored, and copying a large
+    // dense block would cost as much as a residual evaluation.
+    pub(crate) h: Arc<Matrix>,
+    pub(crate) a: Arc<Matrix>,
     pub(crate) c: Vec<f64>,
     pub(crate) b: Vec<f64>,
 }
@@ -118,9 +122,18 @@ impl Problem {
 
     /// Replaces the values of `H` and `A` by those of `other`, which must have the same
     /// dimensions and, for sparse blocks, the same pattern. `c` and `b` are copied too.
+    ///
+    /// The blocks are shared, not copied (a problem holds `H` and `A` behind reference
+    /// counts, so clones are cheap and an update costs the structure check only).
     pub fn update_values(&mut self, other: &Problem) -> Result<()> {
-        self.h.copy_values_from(&other.h, Block::H)?;
-        self.a.copy_values_from(&other.a, Block::A)?;
+        if !Arc::ptr_eq(&self.h, &other.h) {
+            self.h.check_same_structure(&other.h, Block::H)?;
+        }
+        if !Arc::ptr_eq(&self.a, &other.a) {
+            self.a.check_same_structure(&other.a, Block::A)?;
+        }
+        self.h = Arc::clone(&other.h);
+        self.a = Arc::clone(&other.a);
         self.c.copy_from_slice(&other.c);
         self.b.copy_from_slice(&other.b);
         Ok(())

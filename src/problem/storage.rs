@@ -59,8 +59,8 @@ impl Matrix {
         match self {
             Matrix::Dense(m) => {
                 for j in 0..m.ncols() {
-                    for i in 0..m.nrows() {
-                        f(i, j, m[(i, j)]);
+                    for (i, &v) in m.col(j).iter().enumerate() {
+                        f(i, j, v);
                     }
                 }
             }
@@ -152,8 +152,9 @@ impl Matrix {
         self.for_each(|i, j, v| y[j] += v.abs() * x[i].abs());
     }
 
-    /// Copies the values of `other` into `self` (same shape, and same pattern if sparse).
-    pub(crate) fn copy_values_from(&mut self, other: &Matrix, block: Block) -> Result<()> {
+    /// Checks that `other` has the shape of `self`, and the same pattern when both are
+    /// sparse (a change of storage kind is allowed).
+    pub(crate) fn check_same_structure(&self, other: &Matrix, block: Block) -> Result<()> {
         if self.nrows() != other.nrows() || self.ncols() != other.ncols() {
             return Err(Error::StructureChanged {
                 detail: format!(
@@ -165,19 +166,14 @@ impl Matrix {
                 ),
             });
         }
-        match (self, other) {
-            (Matrix::Dense(a), Matrix::Dense(b)) => a.copy_from(b),
-            (Matrix::Sparse(a), Matrix::Sparse(b)) => {
-                let same = a.symbolic().col_ptr() == b.symbolic().col_ptr()
-                    && a.symbolic().row_idx() == b.symbolic().row_idx();
-                if !same {
-                    return Err(Error::StructureChanged {
-                        detail: format!("the sparsity pattern of block {block} changed"),
-                    });
-                }
-                a.val_mut().copy_from_slice(b.val());
+        if let (Matrix::Sparse(a), Matrix::Sparse(b)) = (self, other) {
+            let same =
+                a.symbolic().col_ptr() == b.symbolic().col_ptr() && a.symbolic().row_idx() == b.symbolic().row_idx();
+            if !same {
+                return Err(Error::StructureChanged {
+                    detail: format!("the sparsity pattern of block {block} changed"),
+                });
             }
-            (s, o) => *s = o.clone(),
         }
         Ok(())
     }
