@@ -316,3 +316,39 @@ fn mesh_independence_poisson_control_small() {
 fn mesh_independence_poisson_control_large() {
     assert_mesh_independent(&poisson_counts(&[50, 100, 200]));
 }
+
+#[test]
+fn auto_picks_minres_only_when_the_direct_factor_exceeds_the_budget() {
+    let p = PoissonControl::new(30).build().unwrap();
+    // A budget of 1 KiB: the sparse LDLᵀ factor of a KKT matrix of order 2700 cannot fit.
+    let tiny = Options {
+        memory_budget_bytes: Some(1024),
+        ..Default::default()
+    };
+    let plan = tangency::Plan::analyze(&p, &tiny).unwrap();
+    assert_eq!(plan.method(), MethodUsed::Minres, "{}", plan.reason());
+    let s = plan.factor(&p).unwrap().solve().unwrap();
+    assert_eq!(s.method, MethodUsed::Minres);
+    assert!(s.inertia.is_none() && s.verdict.is_none());
+    assert!(s.notes.iter().any(|n| n.contains("memory budget")), "{:?}", s.notes);
+    // The default budget (half of MemAvailable) and an explicit generous one: direct.
+    for budget in [None, Some(1u64 << 40)] {
+        let normal = Options {
+            memory_budget_bytes: budget,
+            ..Default::default()
+        };
+        let plan = tangency::Plan::analyze(&p, &normal).unwrap();
+        assert_eq!(plan.method(), MethodUsed::SparseLdlt, "{}", plan.reason());
+        let d = plan.factor(&p).unwrap().solve().unwrap();
+        assert!(rel_diff(&s.x, &d.x) < 1e-9 && rel_diff(&s.y, &d.y) < 1e-9);
+    }
+    // The budget never overrides an explicit method.
+    let forced = Options {
+        method: Method::Sparse,
+        ..tiny
+    };
+    assert_eq!(
+        tangency::Plan::analyze(&p, &forced).unwrap().method(),
+        MethodUsed::SparseLdlt
+    );
+}

@@ -22,6 +22,7 @@ use crate::kkt;
 use crate::problem::Problem;
 use crate::solution::{MethodUsed, Solution, Timing};
 
+pub mod backend;
 pub mod minres;
 pub mod operator;
 pub mod pcg;
