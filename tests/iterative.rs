@@ -267,8 +267,16 @@ fn indefinite_user_preconditioner_is_refused() {
     assert!(e.to_string().contains("positive definite"), "{e}");
 }
 
-/// Iteration counts on Poisson control for the two second blocks.
-fn poisson_counts(ks: &[usize]) -> Vec<(usize, usize, usize)> {
+/// MINRES iteration counts on Poisson control for the three second blocks.
+#[derive(Copy, Clone, Debug)]
+struct Counts {
+    k: usize,
+    cholesky: usize,
+    matching: usize,
+    diagonal: usize,
+}
+
+fn poisson_counts(ks: &[usize]) -> Vec<Counts> {
     ks.iter()
         .map(|&k| {
             let p = PoissonControl::new(k).build().unwrap();
@@ -285,22 +293,41 @@ fn poisson_counts(ks: &[usize]) -> Vec<(usize, usize, usize)> {
                 .unwrap()
                 .iterations
             };
-            let (chol, diag) = (run(SecondBlock::Cholesky), run(SecondBlock::Diagonal));
+            let c = Counts {
+                k,
+                cholesky: run(SecondBlock::Cholesky),
+                matching: run(SecondBlock::Matching),
+                diagonal: run(SecondBlock::Diagonal),
+            };
             eprintln!(
-                "Poisson control k = {k}: MINRES iterations, Cholesky Schur block {chol}, diagonal Schur block {diag}"
+                "Poisson control k = {}: MINRES iterations, Schur block cholesky {}, matching {}, diagonal {}",
+                c.k, c.cholesky, c.matching, c.diagonal
             );
-            (k, chol, diag)
+            c
         })
         .collect()
 }
 
-fn assert_mesh_independent(counts: &[(usize, usize, usize)]) {
-    let min = counts.iter().map(|c| c.1).min().unwrap() as f64;
-    let max = counts.iter().map(|c| c.1).max().unwrap() as f64;
-    let mid = 0.5 * (min + max);
+/// "Within ±30% of each other": the largest count is at most 1.3 times the smallest.
+fn within_30_percent(counts: &[usize]) -> bool {
+    let min = *counts.iter().min().unwrap() as f64;
+    let max = *counts.iter().max().unwrap() as f64;
+    max <= 1.3 * min
+}
+
+/// Two claims. (1) The sparse-Cholesky block is the exact Schur complement here (H is
+/// diagonal), so MINRES needs at most 3 iterations in exact arithmetic (Murphy, Golub &
+/// Wathen 2000); in floating point we allow 5 (counts 3, 3, 5 were seen at k = 50, 100,
+/// 200: small integers cannot be "within ±30%" of each other, so the bound is absolute).
+/// (2) The matching block (Pearson & Wathen 2012, eig(Ŝ⁻¹S) ⊂ [1/2, 1]) gives counts within
+/// ±30% of each other (largest ≤ 1.3 × smallest). The diagonal block is mesh-dependent and
+/// only printed.
+fn assert_mesh_independent(counts: &[Counts]) {
+    assert!(counts.iter().all(|c| c.cholesky <= 5), "{counts:?}");
+    let matching: Vec<usize> = counts.iter().map(|c| c.matching).collect();
     assert!(
-        max <= 1.3 * mid && min >= 0.7 * mid,
-        "iteration counts vary more than ±30%: {counts:?}"
+        within_30_percent(&matching),
+        "matching counts vary more than ±30%: {counts:?}"
     );
 }
 
@@ -310,7 +337,7 @@ fn mesh_independence_poisson_control_small() {
 }
 
 /// The sizes named in the issue. Run with
-/// `cargo test --test iterative -- --ignored --nocapture mesh_independence_poisson_control_large`.
+/// `cargo test --release --test iterative -- --ignored --nocapture mesh_independence_poisson_control_large`.
 #[test]
 #[ignore]
 fn mesh_independence_poisson_control_large() {

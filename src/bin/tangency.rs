@@ -54,7 +54,8 @@ enum Command {
         #[arg(long, default_value_t = tangency::iterative::DEFAULT_MAX_ITER)]
         max_iter: usize,
         /// For --method minres: second preconditioner block, cholesky (sparse Cholesky of
-        /// A diag(H)⁻¹ Aᵀ) or diagonal (its diagonal).
+        /// A diag(H)⁻¹ Aᵀ), diagonal (its diagonal) or matching (Pearson–Wathen: one sparse
+        /// factorization of A₁D₁^(-1/2) ± A₂D₂^(-1/2); needs A = [A₁ A₂] with square blocks).
         #[arg(long, default_value = "cholesky")]
         schur_block: String,
         /// Also report how the optimal objective moves with b and c (df/db = −y, df/dc = x).
@@ -430,9 +431,12 @@ fn solve_iterative(
     let second = match schur_block {
         "cholesky" => SecondBlock::Cholesky,
         "diagonal" => SecondBlock::Diagonal,
+        "matching" => SecondBlock::Matching,
         other => {
             return fail(
-                Error::InvalidOption(format!("unknown --schur-block '{other}'; known: cholesky, diagonal")),
+                Error::InvalidOption(format!(
+                    "unknown --schur-block '{other}'; known: cholesky, diagonal, matching"
+                )),
                 None,
             )
         }
