@@ -379,3 +379,24 @@ fn auto_picks_minres_only_when_the_direct_factor_exceeds_the_budget() {
         MethodUsed::SparseLdlt
     );
 }
+
+#[test]
+fn minres_on_faer_traits_accepts_a_faer_matrix_and_matches_the_crate_operator() {
+    // K assembled densely by nalgebra (outside the crate's operator), handed to MINRES as a
+    // faer `Mat` (faer implements `LinOp` for it) with faer's identity preconditioner.
+    let mut rng = Rng::new(21);
+    let (p, xs, ys) = designed(&mut rng, 10, 4);
+    let k = kkt_nalgebra(&p);
+    let kf = faer::Mat::from_fn(k.nrows(), k.ncols(), |i, j| k[(i, j)]);
+    let rhs: Vec<f64> = p.linear().iter().map(|v| -v).chain(p.rhs().iter().copied()).collect();
+    let id = faer::matrix_free::IdentityPrecond { dim: 14 };
+    let a = iterative::minres::minres_faer(&kf, &id, &rhs, None, 1e-12, 200).unwrap();
+    let b = minres(&p, &iterative::Identity, &rhs, None, 1e-12, 200).unwrap();
+    assert!(a.converged && b.converged);
+    assert_eq!(a.iterations, b.iterations);
+    let zs: Vec<f64> = xs.iter().chain(&ys).copied().collect();
+    assert!(rel_diff(&a.z, &zs) < 1e-8 && rel_diff(&b.z, &zs) < 1e-8);
+    // Mismatched orders are a typed error.
+    let bad = faer::matrix_free::IdentityPrecond { dim: 3 };
+    assert!(iterative::minres::minres_faer(&kf, &bad, &rhs, None, 1e-12, 10).is_err());
+}

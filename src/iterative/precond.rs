@@ -47,8 +47,9 @@ pub trait BlockSolve {
     fn solve(&self, r: &[f64], out: &mut [f64]);
 }
 
-/// An SPD preconditioner for the whole KKT system: `out = P⁻¹·r` (length n + m).
-pub trait Preconditioner {
+/// An SPD preconditioner for the whole KKT system: `out = P⁻¹·r` (length n + m). `Sync`
+/// because MINRES runs on faer's `Precond` trait, which requires it.
+pub trait Preconditioner: Sync {
     /// `out = P⁻¹·r` (overwrites `out`).
     fn apply(&self, r: &[f64], out: &mut [f64]);
 }
