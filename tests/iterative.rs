@@ -400,3 +400,24 @@ fn minres_on_faer_traits_accepts_a_faer_matrix_and_matches_the_crate_operator() 
     let bad = faer::matrix_free::IdentityPrecond { dim: 3 };
     assert!(iterative::minres::minres_faer(&kf, &bad, &rhs, None, 1e-12, 10).is_err());
 }
+
+#[test]
+fn matching_block_lu_path_and_typed_error() {
+    // Random A = [A₁ A₂] (n = 2m) and non-diagonal H: M = B₁ ± B₂ is not symmetric, so the
+    // block goes through the sparse LU and applies M⁻ᵀM⁻¹; the answer is fixed by design.
+    let mut rng = Rng::new(5);
+    let (p, xs, ys) = designed(&mut rng, 12, 6);
+    let opts = IterativeOptions {
+        tol: 1e-13,
+        second: SecondBlock::Matching,
+        ..Default::default()
+    };
+    let out = iterative::solve(&p, &opts).unwrap();
+    assert!(rel_diff(&out.solution.x, &xs) < 1e-8 && rel_diff(&out.solution.y, &ys) < 1e-8);
+    // n ≠ 2m: typed error naming the shape.
+    let (p, _, _) = designed(&mut rng, 9, 4);
+    match iterative::solve(&p, &opts).unwrap_err() {
+        Error::InvalidOption(msg) => assert!(msg.contains("4×9") && msg.contains("n = 2m"), "{msg}"),
+        other => panic!("expected InvalidOption, got {other:?}"),
+    }
+}
