@@ -299,21 +299,22 @@ pub enum Error {
     /// (CLI exit code 4, status `not_converged`). Recover by raising the limit, loosening the
     /// tolerance or using a stronger preconditioner (or a direct method).
     #[error(
-        "{method} did not converge: {iterations} iteration(s), relative preconditioned residual {residual:.3e} \
+        "{method} did not converge: {iterations} iteration(s), relative residual in the method's norm {residual:.3e} \
          (tolerance {tolerance:.1e}), true relative residual {true_residual:.3e}"
     )]
     NotConverged {
-        /// The iterative method (`"minres"`).
+        /// The iterative method (`"minres"` or `"pcg"`).
         method: &'static str,
         /// Iterations taken.
         iterations: usize,
-        /// Relative residual reached in the method's own (preconditioned) norm.
+        /// Relative residual reached in the method's own norm (MINRES: preconditioned;
+        /// PCG: the KKT residual in the 2-norm).
         residual: f64,
         /// Relative residual `‖rhs − Kz‖₂ / ‖rhs‖₂` of the last iterate on the original K.
         true_residual: f64,
         /// The tolerance asked for.
         tolerance: f64,
-        /// The last (at most 10) relative preconditioned residuals, oldest first.
+        /// The last (at most 10) relative residuals in the method's norm, oldest first.
         history_tail: Vec<f64>,
     },
 }

@@ -91,6 +91,9 @@ pub enum MethodUsed {
     SparseLdlt,
     /// Preconditioned MINRES (iterative; inertia not observed), see [`crate::iterative`].
     Minres,
+    /// Projected conjugate gradients with a constraint preconditioner (iterative; inertia
+    /// not observed), see [`crate::iterative::pcg`].
+    Pcg,
 }
 
 impl MethodUsed {
@@ -103,6 +106,7 @@ impl MethodUsed {
             MethodUsed::NullSpace => "nullspace",
             MethodUsed::SparseLdlt => "sparse",
             MethodUsed::Minres => "minres",
+            MethodUsed::Pcg => "pcg",
         }
     }
 }

@@ -104,6 +104,41 @@ pub struct Options {
     /// Stage dimensions `(nx, nu, N)` for [`Method::Riccati`] (layout in
     /// [`crate::stagewise`]). Default: `None`.
     pub stages: Option<crate::stagewise::StageDims>,
+    /// Memory [`Method::Auto`] may spend on a sparse direct factorization. When the
+    /// estimate from the symbolic analysis ([`SparseAnalysis::numeric_bytes`]: the values of
+    /// `L` at 8 bytes per stored entry, the factorization workspace, the scaled K values and
+    /// scaling vectors) exceeds it, auto uses preconditioned MINRES instead
+    /// ([`crate::iterative::backend`]), with a note. Default: `None`, meaning
+    /// [`default_memory_budget`] (half of `MemAvailable`).
+    pub memory_budget_bytes: Option<u64>,
+}
+
+/// Fraction of `MemAvailable` (from `/proc/meminfo`) that [`default_memory_budget`] allows a
+/// direct factorization: 0.5 (common practice: leave room for the rest of the process and
+/// for the system).
+pub const MEMORY_BUDGET_FRACTION: f64 = 0.5;
+/// Budget used when `/proc/meminfo` cannot be read (non-Linux systems): 4 GiB.
+pub const FALLBACK_MEMORY_BUDGET: u64 = 4 << 30;
+
+/// The default memory budget of [`Method::Auto`]: [`MEMORY_BUDGET_FRACTION`] of the
+/// `MemAvailable` line of `/proc/meminfo`, or [`FALLBACK_MEMORY_BUDGET`] when it cannot be
+/// read.
+///
+/// ```
+/// assert!(tangency::solver::default_memory_budget() > 0);
+/// ```
+pub fn default_memory_budget() -> u64 {
+    std::fs::read_to_string("/proc/meminfo")
+        .ok()
+        .and_then(|text| {
+            text.lines()
+                .find(|l| l.starts_with("MemAvailable:"))
+                .and_then(|l| l.split_whitespace().nth(1))
+                .and_then(|kb| kb.parse::<u64>().ok())
+        })
+        .map(|kb| (kb as f64 * 1024.0 * MEMORY_BUDGET_FRACTION) as u64)
+        .filter(|b| *b > 0)
+        .unwrap_or(FALLBACK_MEMORY_BUDGET)
 }
 
 impl Default for Options {
@@ -118,6 +153,7 @@ impl Default for Options {
             refinement_target: DEFAULT_REFINEMENT_TARGET,
             accept_backward_error: DEFAULT_ACCEPT_BACKWARD_ERROR,
             stages: None,
+            memory_budget_bytes: None,
         }
     }
 }
@@ -163,10 +199,26 @@ impl Plan {
             ),
             Method::Auto => auto::choose(problem, options),
         };
-        let sparse = match method {
+        let mut sparse = match method {
             MethodUsed::SparseLdlt => Some(std::sync::Arc::new(SparseAnalysis::new(problem, &options.sparse)?)),
             _ => None,
         };
+        let (mut method, mut reason) = (method, reason);
+        if let (Method::Auto, Some(analysis)) = (options.method, &sparse) {
+            // Auto only: a direct factorization that would not fit goes to MINRES.
+            let need = analysis.numeric_bytes() as u64;
+            let budget = options.memory_budget_bytes.unwrap_or_else(default_memory_budget);
+            if need > budget {
+                notes.push(format!(
+                    "auto chose MINRES: the sparse LDLᵀ factorization would need about {need} bytes \
+                     ({} stored entries of L), over the memory budget of {budget} bytes",
+                    analysis.factor_entries()
+                ));
+                method = MethodUsed::Minres;
+                reason = format!("sparse direct factor estimated at {need} bytes > memory budget {budget} bytes");
+                sparse = None;
+            }
+        }
         Ok(Plan {
             n: problem.n(),
             m: problem.m(),
@@ -232,6 +284,12 @@ impl Plan {
                     ))
                 }
             },
+            MethodUsed::Minres => Box::new(crate::iterative::backend::MinresBackend::new(
+                problem,
+                "preconditioned MINRES (Jacobi and sparse-Cholesky Schur blocks, tolerance 1e-10 per solve): \
+                 inertia and verdict NOT verified"
+                    .to_string(),
+            )),
             _ => auto::make_backend(self.method, problem, &self.options),
         };
         backend.factor(problem)?;

@@ -267,8 +267,16 @@ fn indefinite_user_preconditioner_is_refused() {
     assert!(e.to_string().contains("positive definite"), "{e}");
 }
 
-/// Iteration counts on Poisson control for the two second blocks.
-fn poisson_counts(ks: &[usize]) -> Vec<(usize, usize, usize)> {
+/// MINRES iteration counts on Poisson control for the three second blocks.
+#[derive(Copy, Clone, Debug)]
+struct Counts {
+    k: usize,
+    cholesky: usize,
+    matching: usize,
+    diagonal: usize,
+}
+
+fn poisson_counts(ks: &[usize]) -> Vec<Counts> {
     ks.iter()
         .map(|&k| {
             let p = PoissonControl::new(k).build().unwrap();
@@ -285,22 +293,41 @@ fn poisson_counts(ks: &[usize]) -> Vec<(usize, usize, usize)> {
                 .unwrap()
                 .iterations
             };
-            let (chol, diag) = (run(SecondBlock::Cholesky), run(SecondBlock::Diagonal));
+            let c = Counts {
+                k,
+                cholesky: run(SecondBlock::Cholesky),
+                matching: run(SecondBlock::Matching),
+                diagonal: run(SecondBlock::Diagonal),
+            };
             eprintln!(
-                "Poisson control k = {k}: MINRES iterations, Cholesky Schur block {chol}, diagonal Schur block {diag}"
+                "Poisson control k = {}: MINRES iterations, Schur block cholesky {}, matching {}, diagonal {}",
+                c.k, c.cholesky, c.matching, c.diagonal
             );
-            (k, chol, diag)
+            c
         })
         .collect()
 }
 
-fn assert_mesh_independent(counts: &[(usize, usize, usize)]) {
-    let min = counts.iter().map(|c| c.1).min().unwrap() as f64;
-    let max = counts.iter().map(|c| c.1).max().unwrap() as f64;
-    let mid = 0.5 * (min + max);
+/// "Within ±30% of each other": the largest count is at most 1.3 times the smallest.
+fn within_30_percent(counts: &[usize]) -> bool {
+    let min = *counts.iter().min().unwrap() as f64;
+    let max = *counts.iter().max().unwrap() as f64;
+    max <= 1.3 * min
+}
+
+/// Two claims. (1) The sparse-Cholesky block is the exact Schur complement here (H is
+/// diagonal), so MINRES needs at most 3 iterations in exact arithmetic (Murphy, Golub &
+/// Wathen 2000); in floating point we allow 5 (counts 3, 3, 5 were seen at k = 50, 100,
+/// 200: small integers cannot be "within ±30%" of each other, so the bound is absolute).
+/// (2) The matching block (Pearson & Wathen 2012, eig(Ŝ⁻¹S) ⊂ [1/2, 1]) gives counts within
+/// ±30% of each other (largest ≤ 1.3 × smallest). The diagonal block is mesh-dependent and
+/// only printed.
+fn assert_mesh_independent(counts: &[Counts]) {
+    assert!(counts.iter().all(|c| c.cholesky <= 5), "{counts:?}");
+    let matching: Vec<usize> = counts.iter().map(|c| c.matching).collect();
     assert!(
-        max <= 1.3 * mid && min >= 0.7 * mid,
-        "iteration counts vary more than ±30%: {counts:?}"
+        within_30_percent(&matching),
+        "matching counts vary more than ±30%: {counts:?}"
     );
 }
 
@@ -310,9 +337,87 @@ fn mesh_independence_poisson_control_small() {
 }
 
 /// The sizes named in the issue. Run with
-/// `cargo test --test iterative -- --ignored --nocapture mesh_independence_poisson_control_large`.
+/// `cargo test --release --test iterative -- --ignored --nocapture mesh_independence_poisson_control_large`.
 #[test]
 #[ignore]
 fn mesh_independence_poisson_control_large() {
     assert_mesh_independent(&poisson_counts(&[50, 100, 200]));
+}
+
+#[test]
+fn auto_picks_minres_only_when_the_direct_factor_exceeds_the_budget() {
+    let p = PoissonControl::new(30).build().unwrap();
+    // A budget of 1 KiB: the sparse LDLᵀ factor of a KKT matrix of order 2700 cannot fit.
+    let tiny = Options {
+        memory_budget_bytes: Some(1024),
+        ..Default::default()
+    };
+    let plan = tangency::Plan::analyze(&p, &tiny).unwrap();
+    assert_eq!(plan.method(), MethodUsed::Minres, "{}", plan.reason());
+    let s = plan.factor(&p).unwrap().solve().unwrap();
+    assert_eq!(s.method, MethodUsed::Minres);
+    assert!(s.inertia.is_none() && s.verdict.is_none());
+    assert!(s.notes.iter().any(|n| n.contains("memory budget")), "{:?}", s.notes);
+    // The default budget (half of MemAvailable) and an explicit generous one: direct.
+    for budget in [None, Some(1u64 << 40)] {
+        let normal = Options {
+            memory_budget_bytes: budget,
+            ..Default::default()
+        };
+        let plan = tangency::Plan::analyze(&p, &normal).unwrap();
+        assert_eq!(plan.method(), MethodUsed::SparseLdlt, "{}", plan.reason());
+        let d = plan.factor(&p).unwrap().solve().unwrap();
+        assert!(rel_diff(&s.x, &d.x) < 1e-9 && rel_diff(&s.y, &d.y) < 1e-9);
+    }
+    // The budget never overrides an explicit method.
+    let forced = Options {
+        method: Method::Sparse,
+        ..tiny
+    };
+    assert_eq!(
+        tangency::Plan::analyze(&p, &forced).unwrap().method(),
+        MethodUsed::SparseLdlt
+    );
+}
+
+#[test]
+fn minres_on_faer_traits_accepts_a_faer_matrix_and_matches_the_crate_operator() {
+    // K assembled densely by nalgebra (outside the crate's operator), handed to MINRES as a
+    // faer `Mat` (faer implements `LinOp` for it) with faer's identity preconditioner.
+    let mut rng = Rng::new(21);
+    let (p, xs, ys) = designed(&mut rng, 10, 4);
+    let k = kkt_nalgebra(&p);
+    let kf = faer::Mat::from_fn(k.nrows(), k.ncols(), |i, j| k[(i, j)]);
+    let rhs: Vec<f64> = p.linear().iter().map(|v| -v).chain(p.rhs().iter().copied()).collect();
+    let id = faer::matrix_free::IdentityPrecond { dim: 14 };
+    let a = iterative::minres::minres_faer(&kf, &id, &rhs, None, 1e-12, 200).unwrap();
+    let b = minres(&p, &iterative::Identity, &rhs, None, 1e-12, 200).unwrap();
+    assert!(a.converged && b.converged);
+    assert_eq!(a.iterations, b.iterations);
+    let zs: Vec<f64> = xs.iter().chain(&ys).copied().collect();
+    assert!(rel_diff(&a.z, &zs) < 1e-8 && rel_diff(&b.z, &zs) < 1e-8);
+    // Mismatched orders are a typed error.
+    let bad = faer::matrix_free::IdentityPrecond { dim: 3 };
+    assert!(iterative::minres::minres_faer(&kf, &bad, &rhs, None, 1e-12, 10).is_err());
+}
+
+#[test]
+fn matching_block_lu_path_and_typed_error() {
+    // Random A = [A₁ A₂] (n = 2m) and non-diagonal H: M = B₁ ± B₂ is not symmetric, so the
+    // block goes through the sparse LU and applies M⁻ᵀM⁻¹; the answer is fixed by design.
+    let mut rng = Rng::new(5);
+    let (p, xs, ys) = designed(&mut rng, 12, 6);
+    let opts = IterativeOptions {
+        tol: 1e-13,
+        second: SecondBlock::Matching,
+        ..Default::default()
+    };
+    let out = iterative::solve(&p, &opts).unwrap();
+    assert!(rel_diff(&out.solution.x, &xs) < 1e-8 && rel_diff(&out.solution.y, &ys) < 1e-8);
+    // n ≠ 2m: typed error naming the shape.
+    let (p, _, _) = designed(&mut rng, 9, 4);
+    match iterative::solve(&p, &opts).unwrap_err() {
+        Error::InvalidOption(msg) => assert!(msg.contains("4×9") && msg.contains("n = 2m"), "{msg}"),
+        other => panic!("expected InvalidOption, got {other:?}"),
+    }
 }

@@ -135,3 +135,78 @@ fn bad_iterative_options_exit_2_and_unknown_method_lists_minres() {
     let msg = json(&out)["message"].as_str().unwrap().to_string();
     assert!(msg.contains("minres") && msg.contains("dense"), "{msg}");
 }
+
+#[test]
+fn pcg_solves_reports_iterations_and_agrees_with_sparse() {
+    let dir = generate(15);
+    let p = dir.path().join("p");
+    let (code, out, err) = run(&["solve", p.to_str().unwrap(), "--method", "pcg", "--json"]);
+    assert_eq!(code, 0, "{err}");
+    let v = json(&out);
+    assert_eq!(v["status"], "solved");
+    assert_eq!(v["method"], "pcg");
+    assert!(v["verdict"].is_null() && v["inertia"].is_null());
+    assert!(v["iterations"].as_u64().is_some());
+    assert!(v["residual_history_tail"].as_array().is_some_and(|a| !a.is_empty()));
+    assert!(v["max_iterate_infeasibility"].as_f64().unwrap() < 1e-12);
+    let (code, out_d, err) = run(&["solve", p.to_str().unwrap(), "--method", "sparse", "--json"]);
+    assert_eq!(code, 0, "{err}");
+    let d = json(&out_d);
+    let (a, b) = (v["objective"].as_f64().unwrap(), d["objective"].as_f64().unwrap());
+    assert!((a - b).abs() <= 1e-9 * b.abs().max(1.0), "{a} vs {b}");
+    let (code, text, _) = run(&["solve", p.to_str().unwrap(), "--method", "pcg"]);
+    assert_eq!(code, 0);
+    assert!(text.contains("projected CG") && text.contains("not verified"), "{text}");
+}
+
+#[test]
+fn pcg_iteration_limit_exits_4_and_saddle_is_reported() {
+    // H = [2 1 0; 1 2 0; 0 0 1] (not diagonal: the preconditioner is not exact), A = [0 0 1].
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path();
+    std::fs::write(
+        p.join("H.mtx"),
+        "%%MatrixMarket matrix coordinate real symmetric\n3 3 4\n1 1 2\n2 1 1\n2 2 3\n3 3 1\n",
+    )
+    .unwrap();
+    std::fs::write(
+        p.join("A.mtx"),
+        "%%MatrixMarket matrix coordinate real general\n1 3 1\n1 3 1\n",
+    )
+    .unwrap();
+    std::fs::write(p.join("b.mtx"), "%%MatrixMarket matrix array real general\n1 1\n0.5\n").unwrap();
+    std::fs::write(
+        p.join("c.mtx"),
+        "%%MatrixMarket matrix array real general\n3 1\n1\n-1\n0\n",
+    )
+    .unwrap();
+    let (code, out, _) = run(&[
+        "solve",
+        p.to_str().unwrap(),
+        "--method",
+        "pcg",
+        "--max-iter",
+        "1",
+        "--json",
+    ]);
+    assert_eq!(code, 4, "{out}");
+    let v = json(&out);
+    assert_eq!(v["status"], "not_converged");
+    assert_eq!(v["iterations"], 1);
+    // Indefinite reduced Hessian: H = diag(1, −1, 2) on null([0 0 1]) = span(e₁, e₂).
+    std::fs::write(
+        p.join("H.mtx"),
+        "%%MatrixMarket matrix coordinate real symmetric\n3 3 3\n1 1 1\n2 2 -1\n3 3 2\n",
+    )
+    .unwrap();
+    std::fs::write(
+        p.join("c.mtx"),
+        "%%MatrixMarket matrix array real general\n3 1\n0\n1\n0\n",
+    )
+    .unwrap();
+    let (code, out, err) = run(&["solve", p.to_str().unwrap(), "--method", "pcg", "--json"]);
+    assert_eq!(code, 0, "{err}");
+    let v = json(&out);
+    assert_eq!(v["verdict"], "saddle");
+    assert!((v["negative_curvature"].as_f64().unwrap() + 1.0).abs() < 1e-12);
+}

@@ -32,7 +32,9 @@ enum Command {
         /// Factorization method: auto, dense (LBLᵀ), sparse (regularized sparse LDLᵀ), schur
         /// (Cholesky of H and A H⁻¹ Aᵀ, convex problems), nullspace (QR of Aᵀ, reduced
         /// Hessian) or riccati (stage-wise recursion; needs --stages); or the iterative
-        /// minres (preconditioned MINRES; see --tol, --max-iter, --schur-block).
+        /// minres (preconditioned MINRES; see --tol, --max-iter, --schur-block) or pcg
+        /// (projected conjugate gradients with the constraint preconditioner [|diag H| Aᵀ; A 0]
+        /// factored once; convex problems, A of full row rank; see --tol, --max-iter).
         #[arg(long, default_value = "auto")]
         method: String,
         /// Stage dimensions NX,NU,N for --method riccati (required with it).
@@ -44,14 +46,16 @@ enum Command {
         /// Print exactly one JSON object on stdout (whatever the outcome).
         #[arg(long)]
         json: bool,
-        /// For --method minres: relative tolerance of the preconditioned KKT residual.
+        /// For --method minres: relative tolerance of the preconditioned KKT residual; for
+        /// --method pcg: of the KKT residual in the 2-norm (both relative to ‖[−c; b]‖).
         #[arg(long, default_value_t = tangency::iterative::DEFAULT_TOLERANCE)]
         tol: f64,
-        /// For --method minres: iteration limit (exit 4 when reached).
+        /// For --method minres or pcg: iteration limit (exit 4 when reached).
         #[arg(long, default_value_t = tangency::iterative::DEFAULT_MAX_ITER)]
         max_iter: usize,
         /// For --method minres: second preconditioner block, cholesky (sparse Cholesky of
-        /// A diag(H)⁻¹ Aᵀ) or diagonal (its diagonal).
+        /// A diag(H)⁻¹ Aᵀ), diagonal (its diagonal) or matching (Pearson–Wathen: one sparse
+        /// factorization of A₁D₁^(-1/2) ± A₂D₂^(-1/2); needs A = [A₁ A₂] with square blocks).
         #[arg(long, default_value = "cholesky")]
         schur_block: String,
         /// Also report how the optimal objective moves with b and c (df/db = −y, df/dc = x).
@@ -181,7 +185,9 @@ fn main() -> ExitCode {
             schur_block,
             sensitivity,
         } => {
-            if method == "minres" {
+            if method == "pcg" {
+                solve_pcg(&dir, tol, max_iter, out.as_deref(), json)
+            } else if method == "minres" {
                 solve_iterative(&dir, tol, max_iter, &schur_block, out.as_deref(), json)
             } else {
                 solve(&dir, &method, stages.as_deref(), out.as_deref(), json, sensitivity)
@@ -292,7 +298,7 @@ fn solve(
     let method: Method = match method.parse() {
         Ok(m) => m,
         Err(Error::InvalidOption(msg)) => {
-            let msg = format!("{msg}; iterative: minres");
+            let msg = format!("{msg}; iterative: minres, pcg");
             return fail(Error::InvalidOption(msg), None, None, None, None);
         }
         Err(e) => return fail(e, None, None, None, None),
@@ -425,9 +431,12 @@ fn solve_iterative(
     let second = match schur_block {
         "cholesky" => SecondBlock::Cholesky,
         "diagonal" => SecondBlock::Diagonal,
+        "matching" => SecondBlock::Matching,
         other => {
             return fail(
-                Error::InvalidOption(format!("unknown --schur-block '{other}'; known: cholesky, diagonal")),
+                Error::InvalidOption(format!(
+                    "unknown --schur-block '{other}'; known: cholesky, diagonal, matching"
+                )),
                 None,
             )
         }
@@ -468,6 +477,89 @@ fn solve_iterative(
             result.iterations, result.relative_residual
         );
         println!("  not verified: inertia of K and the kind of stationary point (minimizer or saddle)");
+    }
+    ExitCode::SUCCESS
+}
+
+/// `solve --method pcg`: projected CG (inertia not observed; the verdict is `saddle` only
+/// when a direction of negative curvature proved it).
+fn solve_pcg(dir: &std::path::Path, tol: f64, max_iter: usize, out: Option<&std::path::Path>, json: bool) -> ExitCode {
+    use tangency::iterative::{history_tail, pcg, PcgOptions, PcgStatus, HISTORY_TAIL};
+    let fail = |err: Error, sizes: Option<(usize, usize)>| {
+        if json {
+            let mut o = error_json(&err, sizes, Some("pcg"), None);
+            if let Error::NotConverged {
+                iterations,
+                history_tail,
+                ..
+            } = &err
+            {
+                o.set("iterations", *iterations);
+                o.set("residual_history_tail", &history_tail[..]);
+            }
+            println!("{o}");
+        } else {
+            print_error(&err);
+        }
+        ExitCode::from(exit_code(&err))
+    };
+    let problem = match io::read_problem_dir(dir) {
+        Ok(p) => p,
+        Err(e) => return fail(e, None),
+    };
+    let sizes = Some((problem.n(), problem.m()));
+    let options = PcgOptions {
+        tol,
+        max_iter,
+        ..Default::default()
+    };
+    let result = match pcg(&problem, &options) {
+        Ok(r) => r,
+        Err(e) => return fail(e, sizes),
+    };
+    let solution = &result.solution;
+    if let Some(out) = out {
+        let written = write_pair(out, ("x.mtx", &solution.x), ("multipliers.mtx", &solution.y));
+        if let Err(e) = written {
+            return fail(e, sizes);
+        }
+    }
+    let tail = history_tail(&result.residual_history, HISTORY_TAIL);
+    let max_feas = result.feasibility_history.iter().fold(0.0f64, |a, v| a.max(*v));
+    let curvature = match &result.status {
+        PcgStatus::Converged => None,
+        PcgStatus::NonPositiveCurvature { curvature, .. } => Some(*curvature),
+    };
+    if json {
+        let mut o = solution_json(&problem, solution);
+        o.set("iterations", result.iterations);
+        o.set("residual_history_tail", tail);
+        o.set("relative_residual", result.relative_residual);
+        o.set("max_iterate_infeasibility", max_feas);
+        o.set("minres_iterations", result.minres_iterations);
+        o.set("negative_curvature", curvature);
+        println!("{o}");
+    } else {
+        print!("{}", human(&problem, solution));
+        println!(
+            "  iterations  {} (projected CG){}; true relative residual ‖rhs−Kz‖₂/‖rhs‖₂ {:.2e}",
+            result.iterations,
+            if result.minres_iterations > 0 {
+                format!(" + {} (MINRES)", result.minres_iterations)
+            } else {
+                String::new()
+            },
+            result.relative_residual
+        );
+        println!("  verified    every CG iterate feasible: max ‖Ax_k−b‖∞ = {max_feas:.1e}");
+        match curvature {
+            None => {
+                println!("  not verified: inertia of K and convexity (positive curvature along the CG directions only)")
+            }
+            Some(k) => {
+                println!("  curvature   a feasible direction with pᵀHp/‖p‖² = {k:.2e} was found: no unique minimizer")
+            }
+        }
     }
     ExitCode::SUCCESS
 }

@@ -1,11 +1,13 @@
 //! Preconditioned MINRES (Paige & Saunders 1975) for symmetric, possibly indefinite systems.
 //!
 //! faer 0.24 offers conjugate gradients, BiCGSTAB and LSMR but no MINRES, so the Lanczos
-//! short recurrences and the Givens rotations are written here by hand. They are written on
-//! plain slices and this crate's [`KktOperator`]/[`Preconditioner`] traits rather than on
-//! faer's `LinOp`/`Precond` (whose stack-based interface adds nothing for one right-hand
-//! side); the recurrence follows the published algorithm (also Elman, Silvester & Wathen
-//! 2014, Algorithm 4.1 for the preconditioned form).
+//! short recurrences and the Givens rotations are written here by hand, on faer's
+//! matrix-free traits: [`minres_faer`] takes any `faer::matrix_free::LinOp` (the operator)
+//! and `faer::matrix_free::Precond` (the SPD preconditioner `P⁻¹`), like faer's own Krylov
+//! solvers. [`minres`] keeps this crate's narrower [`KktOperator`]/[`Preconditioner`]
+//! interface through the adapters [`KktLinOp`] and [`PrecondOp`]. The recurrence follows
+//! the published algorithm (also Elman, Silvester & Wathen 2014, Algorithm 4.1 for the
+//! preconditioned form).
 //!
 //! **Stopping rule.** MINRES minimizes the residual in the norm `‖r‖_{P⁻¹} = √(rᵀP⁻¹r)` over
 //! the Krylov space; that norm is available at no cost from the rotations. The iteration
@@ -13,9 +15,123 @@
 //! side, so a warm start does not change the target). The true residual on `K` is
 //! recomputed by the caller and reported separately.
 
+use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
+use faer::matrix_free::{LinOp, Precond};
+use faer::{MatMut, MatRef, Par};
+
 use super::operator::KktOperator;
 use super::precond::Preconditioner;
 use crate::error::{Error, Result};
+
+/// A [`KktOperator`] seen as a faer `LinOp` (`K·z` on each column; `K` is real symmetric,
+/// so the conjugate product is the same).
+///
+/// ```
+/// use faer::matrix_free::LinOp;
+/// use tangency::iterative::{minres::KktLinOp, KktOperator};
+/// let p = tangency::generate::PoissonControl::new(3).build()?;
+/// let op = KktLinOp(&p);
+/// assert_eq!((op.nrows(), op.ncols()), (27, 27));
+/// # Ok::<(), tangency::Error>(())
+/// ```
+pub struct KktLinOp<'a>(pub &'a dyn KktOperator);
+
+impl std::fmt::Debug for KktLinOp<'_> {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("KktLinOp")
+            .field("n", &self.0.n())
+            .field("m", &self.0.m())
+            .finish()
+    }
+}
+
+/// Scratch for copying one column in and out plus `extra` values.
+fn column_scratch(dim: usize, extra: usize) -> StackReq {
+    StackReq::new::<f64>(2 * dim + extra)
+}
+
+/// Applies `f(input, output, extra)` to every column, through contiguous scratch copies.
+fn by_columns(
+    mut out: MatMut<'_, f64>,
+    rhs: MatRef<'_, f64>,
+    extra: usize,
+    stack: &mut MemStack,
+    mut f: impl FnMut(&[f64], &mut [f64], &mut [f64]),
+) {
+    let dim = rhs.nrows();
+    let (mut buf, _) = stack.make_with(2 * dim + extra, |_| 0.0f64);
+    let (input, rest) = buf.split_at_mut(dim);
+    let (output, tmp) = rest.split_at_mut(dim);
+    for j in 0..rhs.ncols() {
+        // Fast path: contiguous columns (always the case inside MINRES).
+        if let (Some(r), Some(o)) = (
+            rhs.col(j).try_as_col_major(),
+            out.as_mut().col_mut(j).try_as_col_major_mut(),
+        ) {
+            f(r.as_slice(), o.as_slice_mut(), tmp);
+            continue;
+        }
+        for (i, v) in input.iter_mut().enumerate() {
+            *v = rhs[(i, j)];
+        }
+        f(input, output, tmp);
+        for (i, v) in output.iter().enumerate() {
+            out[(i, j)] = *v;
+        }
+    }
+}
+
+impl LinOp<f64> for KktLinOp<'_> {
+    fn apply_scratch(&self, _rhs_ncols: usize, _par: Par) -> StackReq {
+        column_scratch(self.nrows(), self.0.n())
+    }
+    fn nrows(&self) -> usize {
+        self.0.n() + self.0.m()
+    }
+    fn ncols(&self) -> usize {
+        self.nrows()
+    }
+    fn apply(&self, out: MatMut<'_, f64>, rhs: MatRef<'_, f64>, _par: Par, stack: &mut MemStack) {
+        by_columns(out, rhs, self.0.n(), stack, |z, o, tmp| self.0.apply_kkt(z, o, tmp));
+    }
+    fn conj_apply(&self, out: MatMut<'_, f64>, rhs: MatRef<'_, f64>, par: Par, stack: &mut MemStack) {
+        self.apply(out, rhs, par, stack);
+    }
+}
+
+/// A [`Preconditioner`] of order `dim` seen as a faer `Precond` (applies `P⁻¹`).
+pub struct PrecondOp<'a> {
+    /// The preconditioner.
+    pub precond: &'a dyn Preconditioner,
+    /// Its order (`n + m`).
+    pub dim: usize,
+}
+
+impl std::fmt::Debug for PrecondOp<'_> {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("PrecondOp").field("dim", &self.dim).finish()
+    }
+}
+
+impl LinOp<f64> for PrecondOp<'_> {
+    fn apply_scratch(&self, _rhs_ncols: usize, _par: Par) -> StackReq {
+        column_scratch(self.dim, 0)
+    }
+    fn nrows(&self) -> usize {
+        self.dim
+    }
+    fn ncols(&self) -> usize {
+        self.dim
+    }
+    fn apply(&self, out: MatMut<'_, f64>, rhs: MatRef<'_, f64>, _par: Par, stack: &mut MemStack) {
+        by_columns(out, rhs, 0, stack, |r, o, _| self.precond.apply(r, o));
+    }
+    fn conj_apply(&self, out: MatMut<'_, f64>, rhs: MatRef<'_, f64>, par: Par, stack: &mut MemStack) {
+        self.apply(out, rhs, par, stack);
+    }
+}
+
+impl Precond<f64> for PrecondOp<'_> {}
 
 /// Outcome of a MINRES run (converged or not).
 #[derive(Clone, Debug)]
@@ -52,8 +168,62 @@ pub fn minres(
     tol: f64,
     max_iter: usize,
 ) -> Result<MinresOutcome> {
-    let (n, m) = (op.n(), op.m());
-    let dim = n + m;
+    let dim = op.n() + op.m();
+    minres_faer(&KktLinOp(op), &PrecondOp { precond, dim }, rhs, z0, tol, max_iter)
+}
+
+/// Runs preconditioned MINRES on `K z = rhs` for any symmetric faer `LinOp` `K` and SPD
+/// faer `Precond` (applying `P⁻¹`), from `z0` (zero if `None`); same rules as [`minres`].
+///
+/// ```
+/// use faer::matrix_free::IdentityPrecond;
+/// use tangency::iterative::minres::{minres_faer, KktLinOp};
+/// let p = tangency::generate::PoissonControl::new(4).build()?;
+/// let rhs: Vec<f64> = p.linear().iter().map(|v| -v).chain(p.rhs().iter().copied()).collect();
+/// let out = minres_faer(&KktLinOp(&p), &IdentityPrecond { dim: 48 }, &rhs, None, 1e-8, 500)?;
+/// assert!(out.converged);
+/// # Ok::<(), tangency::Error>(())
+/// ```
+pub fn minres_faer<O: LinOp<f64> + ?Sized, P: Precond<f64> + ?Sized>(
+    op: &O,
+    precond: &P,
+    rhs: &[f64],
+    z0: Option<&[f64]>,
+    tol: f64,
+    max_iter: usize,
+) -> Result<MinresOutcome> {
+    let dim = op.nrows();
+    if op.ncols() != dim || precond.nrows() != dim || precond.ncols() != dim {
+        return Err(Error::InvalidOption(format!(
+            "MINRES: the operator ({}×{}) and the preconditioner ({}×{}) must be square of the same order",
+            op.nrows(),
+            op.ncols(),
+            precond.nrows(),
+            precond.ncols()
+        )));
+    }
+    let mut buf =
+        MemBuffer::try_new(op.apply_scratch(1, Par::Seq).or(precond.apply_scratch(1, Par::Seq))).map_err(|_| {
+            Error::Resources {
+                detail: format!("MINRES workspace for order {dim}"),
+            }
+        })?;
+    let apply_k = |x: &[f64], out: &mut [f64], buf: &mut MemBuffer| {
+        op.apply(
+            MatMut::from_column_major_slice_mut(out, dim, 1),
+            MatRef::from_column_major_slice(x, dim, 1),
+            Par::Seq,
+            MemStack::new(buf),
+        )
+    };
+    let apply_p = |r: &[f64], out: &mut [f64], buf: &mut MemBuffer| {
+        precond.apply(
+            MatMut::from_column_major_slice_mut(out, dim, 1),
+            MatRef::from_column_major_slice(r, dim, 1),
+            Par::Seq,
+            MemStack::new(buf),
+        )
+    };
     if rhs.len() != dim || z0.is_some_and(|z| z.len() != dim) {
         return Err(Error::InvalidOption(format!(
             "MINRES: right-hand side / warm start must have length n + m = {dim}"
@@ -64,9 +234,8 @@ pub fn minres(
             "MINRES needs a symmetric positive definite preconditioner, but rᵀP⁻¹r = {v:e} for the {what}"
         )))
     };
-    let mut tmp = vec![0.0; n];
     let mut y = vec![0.0; dim];
-    precond.apply(rhs, &mut y);
+    apply_p(rhs, &mut y, &mut buf);
     let bnorm2 = dot(rhs, &y);
     if !spd_ok(bnorm2) {
         return not_spd("right-hand side", bnorm2);
@@ -85,11 +254,11 @@ pub fn minres(
     }
     // r1 = rhs − K x0.
     let mut r1 = vec![0.0; dim];
-    op.apply_kkt(&x, &mut r1, &mut tmp);
+    apply_k(&x, &mut r1, &mut buf);
     for (r, b) in r1.iter_mut().zip(rhs) {
         *r = b - *r;
     }
-    precond.apply(&r1, &mut y);
+    apply_p(&r1, &mut y, &mut buf);
     let beta1_sq = dot(&r1, &y);
     if !spd_ok(beta1_sq) {
         return not_spd("initial residual", beta1_sq);
@@ -121,7 +290,7 @@ pub fn minres(
         for (vi, yi) in v.iter_mut().zip(&y) {
             *vi = s * yi;
         }
-        op.apply_kkt(&v, &mut y, &mut tmp);
+        apply_k(&v, &mut y, &mut buf);
         if itn >= 2 {
             let f = beta / oldb;
             for (yi, ri) in y.iter_mut().zip(&r1) {
@@ -135,7 +304,7 @@ pub fn minres(
         }
         std::mem::swap(&mut r1, &mut r2);
         r2.copy_from_slice(&y);
-        precond.apply(&r2, &mut y);
+        apply_p(&r2, &mut y, &mut buf);
         oldb = beta;
         let b2 = dot(&r2, &y);
         // A rounding-level negative value (|·| ≤ 1e-14·‖rhs‖²_{P⁻¹}) counts as zero.

@@ -22,12 +22,15 @@ use crate::kkt;
 use crate::problem::Problem;
 use crate::solution::{MethodUsed, Solution, Timing};
 
+pub mod backend;
 pub mod minres;
 pub mod operator;
+pub mod pcg;
 pub mod precond;
 
 pub use minres::{minres, MinresOutcome};
 pub use operator::{FnOperator, KktOperator, MatrixPair};
+pub use pcg::{pcg, PcgOptions, PcgSolution, PcgStatus};
 pub use precond::{
     BlockDiagonal, BlockSolve, CholeskyBlock, DiagonalBlock, FirstBlock, Identity, Preconditioner, SecondBlock,
 };

@@ -9,8 +9,9 @@ use crate::problem::{Matrix, Problem};
 
 /// The blocks of a KKT system `K = [H Aᵀ; A 0]` as products.
 ///
-/// Every method **overwrites** its output (it does not accumulate).
-pub trait KktOperator {
+/// Every method **overwrites** its output (it does not accumulate). `Sync` because MINRES
+/// runs on faer's matrix-free `LinOp` trait, which requires it (see [`super::minres`]).
+pub trait KktOperator: Sync {
     /// Number of variables `n` (order of `H`, columns of `A`).
     fn n(&self) -> usize;
     /// Number of constraints `m` (rows of `A`).
@@ -128,9 +129,9 @@ where
 
 impl<FH, FA, FT> KktOperator for FnOperator<FH, FA, FT>
 where
-    FH: Fn(&[f64], &mut [f64]),
-    FA: Fn(&[f64], &mut [f64]),
-    FT: Fn(&[f64], &mut [f64]),
+    FH: Fn(&[f64], &mut [f64]) + Sync,
+    FA: Fn(&[f64], &mut [f64]) + Sync,
+    FT: Fn(&[f64], &mut [f64]) + Sync,
 {
     fn n(&self) -> usize {
         self.n

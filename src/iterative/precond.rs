@@ -8,12 +8,29 @@
 //!   of `H + σI`, faer's sparse `LLᵀ`);
 //! * `P₂`: [`SecondBlock::Diagonal`] (`diag(A D⁻¹ Aᵀ)`) or [`SecondBlock::Cholesky`]
 //!   (sparse Cholesky of `A D⁻¹ Aᵀ`), where `D = diag(H)` (with the Jacobi floor below).
-//!   When `H` is diagonal, `A D⁻¹ Aᵀ` is the exact Schur complement.
+//!   When `H` is diagonal, `A D⁻¹ Aᵀ` is the exact Schur complement. `A D⁻¹ Aᵀ` is
+//!   assembled by faer's sparse-sparse product of `B = A D^{-1/2}` and `Bᵀ`;
+//! * `P₂`: [`SecondBlock::Matching`] (Pearson & Wathen 2012, Numer. Linear Algebra Appl. 19,
+//!   "A new approximation of the Schur complement in preconditioners for PDE-constrained
+//!   optimization"), for `A = [A₁ A₂]` with two square m×m blocks (`n = 2m`): with
+//!   `D = diag(D₁, D₂)` and `B_i = A_i D_i^{-1/2}`, `S = A D⁻¹ Aᵀ = B₁B₁ᵀ + B₂B₂ᵀ` is
+//!   approximated by `Ŝ = (B₁ + σB₂)(B₁ + σB₂)ᵀ`, applied through **one** sparse
+//!   factorization of the m×m matrix `M = B₁ + σB₂` (Cholesky when `M` is symmetric and
+//!   positive definite, LU otherwise) and two triangular solves each way. When
+//!   `σ(B₁B₂ᵀ + B₂B₁ᵀ)` is positive semidefinite, `eig(Ŝ⁻¹S) ⊂ [1/2, 1]` (Pearson & Wathen
+//!   2012, quoted from memory). σ = ±1 is the sign of `tr(B₁B₂ᵀ)` (a necessary condition
+//!   for that semidefiniteness; it is not checked further). On Poisson control (`A₁` the
+//!   5-point Laplacian, `A₂ = −h²I`, `D₁`, `D₂` multiples of `I`) `M` is a symmetric
+//!   positive definite 5-point matrix instead of the 13-point `A D⁻¹ Aᵀ`, and the bound
+//!   holds. Not applicable (typed [`Error::InvalidOption`]) when `n ≠ 2m` or `M` is
+//!   singular.
 //!
 //! Every block must be symmetric positive definite (MINRES needs an SPD preconditioner).
 //! Users plug their own blocks in through [`BlockSolve`].
 
 use std::collections::HashMap;
+
+use crate::problem::Matrix;
 
 use faer::linalg::solvers::Solve;
 use faer::sparse::{SparseColMat, Triplet};
@@ -30,8 +47,9 @@ pub trait BlockSolve {
     fn solve(&self, r: &[f64], out: &mut [f64]);
 }
 
-/// An SPD preconditioner for the whole KKT system: `out = P⁻¹·r` (length n + m).
-pub trait Preconditioner {
+/// An SPD preconditioner for the whole KKT system: `out = P⁻¹·r` (length n + m). `Sync`
+/// because MINRES runs on faer's `Precond` trait, which requires it.
+pub trait Preconditioner: Sync {
     /// `out = P⁻¹·r` (overwrites `out`).
     fn apply(&self, r: &[f64], out: &mut [f64]);
 }
@@ -108,6 +126,19 @@ impl CholeskyBlock {
     }
 }
 
+impl CholeskyBlock {
+    /// Factors the SPD matrix `mat` (only its lower triangle is read). `what` names the
+    /// block in the error when it is not SPD.
+    pub fn from_matrix(mat: &SparseColMat<usize, f64>, what: &str) -> Result<Self> {
+        let llt = mat.sp_cholesky(Side::Lower).map_err(|e| {
+            Error::InvalidOption(format!(
+                "the preconditioner block {what} is not positive definite ({e:?}); use a Jacobi/diagonal block or a shift"
+            ))
+        })?;
+        Ok(CholeskyBlock { dim: mat.nrows(), llt })
+    }
+}
+
 impl BlockSolve for CholeskyBlock {
     fn dim(&self) -> usize {
         self.dim
@@ -139,6 +170,9 @@ pub enum SecondBlock {
     Diagonal,
     /// Sparse Cholesky of `A D⁻¹ Aᵀ` (exact Schur complement when `H` is diagonal).
     Cholesky,
+    /// Pearson–Wathen "matching" approximation `(B₁ + σB₂)(B₁ + σB₂)ᵀ` for `A = [A₁ A₂]`
+    /// with square blocks (`n = 2m`), see the [module docs](self).
+    Matching,
 }
 
 /// `P = diag(P₁, P₂)`.
@@ -193,21 +227,11 @@ impl BlockDiagonal {
                 Box::new(CholeskyBlock::from_lower_entries(n, &e, "P1 = H + shift·I")?)
             }
         };
-        // Columns of A as lists, to form A D⁻¹ Aᵀ column by column of A.
-        let mut cols: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n];
-        problem.constraints().for_each(|i, j, v| {
-            if v != 0.0 {
-                cols[j].push((i, v));
-            }
-        });
+        let a = problem.constraints();
         let p2: Box<dyn BlockSolve + Send + Sync> = match second {
             SecondBlock::Diagonal => {
                 let mut s = vec![0.0; m];
-                for (j, col) in cols.iter().enumerate() {
-                    for &(i, v) in col {
-                        s[i] += v * v / diag[j];
-                    }
-                }
+                a.for_each(|i, j, v| s[i] += v * v / diag[j]);
                 let smax = s.iter().fold(0.0f64, |a, v| a.max(*v));
                 let sfloor = if smax > 0.0 { 1e-14 * smax } else { 1.0 };
                 for v in s.iter_mut() {
@@ -218,18 +242,22 @@ impl BlockDiagonal {
                 Box::new(DiagonalBlock::new(&s)?)
             }
             SecondBlock::Cholesky => {
-                let mut e: HashMap<(usize, usize), f64> = HashMap::new();
-                for (j, col) in cols.iter().enumerate() {
-                    for &(i, vi) in col {
-                        for &(k, vk) in col {
-                            if i >= k {
-                                *e.entry((i, k)).or_insert(0.0) += vi * vk / diag[j];
-                            }
-                        }
-                    }
-                }
-                Box::new(CholeskyBlock::from_lower_entries(m, &e, "P2 = A D⁻¹ Aᵀ")?)
+                // S = B Bᵀ with B = A D^{-1/2} (same pattern as A), by faer's sparse product.
+                let scale: Vec<f64> = diag.iter().map(|d| 1.0 / d.sqrt()).collect();
+                let b = scaled_columns(a, m, n, |j| (j, scale[j]));
+                drop(scale);
+                let bt = b.as_ref().transpose().to_col_major().map_err(|e| Error::Resources {
+                    detail: format!("transposing B = A D^(-1/2): {e:?}"),
+                })?;
+                let s =
+                    faer::sparse::linalg::matmul::sparse_sparse_matmul(b.as_ref(), bt.as_ref(), 1.0, faer::Par::Seq)
+                        .map_err(|e| Error::Resources {
+                            detail: format!("forming P2 = A D⁻¹ Aᵀ: {e:?}"),
+                        })?;
+                drop((b, bt));
+                Box::new(CholeskyBlock::from_matrix(&s, "P2 = A D⁻¹ Aᵀ")?)
             }
+            SecondBlock::Matching => Box::new(MatchingBlock::new(a, m, n, &diag)?),
         };
         Ok(BlockDiagonal { p1, p2 })
     }
@@ -242,5 +270,209 @@ impl Preconditioner for BlockDiagonal {
         let (o1, o2) = out.split_at_mut(n);
         self.p1.solve(r1, o1);
         self.p2.solve(r2, o2);
+    }
+}
+
+/// The m×`ncols` matrix whose column `c` is `Σ_j w·A[:, j]` over the columns `j` of `A` with
+/// `map(j) = (c, w)`, built column by column in compressed form (rows sorted, equal rows
+/// summed) without triplets. `map` must send at most two columns of `A` to each `c`, and
+/// `ncols` must cover every `c`.
+fn scaled_columns(a: &Matrix, m: usize, ncols: usize, map: impl Fn(usize) -> (usize, f64)) -> SparseColMat<usize, f64> {
+    // Which columns of A feed each output column.
+    let mut feeds: Vec<[Option<(usize, f64)>; 2]> = vec![[None, None]; ncols];
+    for j in 0..a.ncols() {
+        let (c, w) = map(j);
+        let slot = &mut feeds[c];
+        if slot[0].is_none() {
+            slot[0] = Some((j, w));
+        } else {
+            slot[1] = Some((j, w));
+        }
+    }
+    let mut col_ptr = Vec::with_capacity(ncols + 1);
+    col_ptr.push(0usize);
+    let mut row_idx = Vec::with_capacity(a.nnz());
+    let mut val = Vec::with_capacity(a.nnz());
+    let (mut c1, mut c2) = (Vec::new(), Vec::new());
+    for f in &feeds {
+        column(a, f[0], &mut c1);
+        column(a, f[1], &mut c2);
+        // Merge two sorted columns.
+        let (mut p, mut q) = (0, 0);
+        while p < c1.len() || q < c2.len() {
+            let (i, v) = match (c1.get(p), c2.get(q)) {
+                (Some(&(i1, v1)), Some(&(i2, v2))) if i1 == i2 => {
+                    p += 1;
+                    q += 1;
+                    (i1, v1 + v2)
+                }
+                (Some(&(i1, v1)), Some(&(i2, _))) if i1 < i2 => {
+                    p += 1;
+                    (i1, v1)
+                }
+                (Some(&(i1, v1)), None) => {
+                    p += 1;
+                    (i1, v1)
+                }
+                (_, Some(&(i2, v2))) => {
+                    q += 1;
+                    (i2, v2)
+                }
+                (None, None) => break,
+            };
+            row_idx.push(i);
+            val.push(v);
+        }
+        col_ptr.push(row_idx.len());
+    }
+    let symbolic = faer::sparse::SymbolicSparseColMat::new_checked(m, ncols, col_ptr, None, row_idx);
+    SparseColMat::new(symbolic, val)
+}
+
+/// The nonzeros `(row, w·value)` of column `j` of `a`, rows increasing (empty for `None`).
+fn column(a: &Matrix, feed: Option<(usize, f64)>, out: &mut Vec<(usize, f64)>) {
+    out.clear();
+    let Some((j, w)) = feed else { return };
+    match a {
+        Matrix::Sparse(s) => {
+            let cp = s.symbolic().col_ptr();
+            let ri = s.symbolic().row_idx();
+            let v = s.val();
+            out.extend((cp[j]..cp[j + 1]).filter(|&k| v[k] != 0.0).map(|k| (ri[k], w * v[k])));
+        }
+        Matrix::Dense(d) => {
+            out.extend((0..d.nrows()).filter(|&i| d[(i, j)] != 0.0).map(|i| (i, w * d[(i, j)])));
+        }
+    }
+}
+
+/// The factor of `M = B₁ + σB₂` behind [`SecondBlock::Matching`].
+enum MatchingFactor {
+    Cholesky(CholeskyBlock),
+    Lu(Box<faer::sparse::linalg::solvers::Lu<usize, f64>>),
+}
+
+/// `P₂ = M Mᵀ` with `M = A₁D₁^{-1/2} + σA₂D₂^{-1/2}` ([`SecondBlock::Matching`]):
+/// `P₂⁻¹r = M⁻ᵀ(M⁻¹r)`.
+pub struct MatchingBlock {
+    dim: usize,
+    sigma: f64,
+    factor: MatchingFactor,
+}
+
+impl std::fmt::Debug for MatchingBlock {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("MatchingBlock")
+            .field("dim", &self.dim)
+            .field("sigma", &self.sigma)
+            .field("cholesky", &matches!(self.factor, MatchingFactor::Cholesky(_)))
+            .finish()
+    }
+}
+
+impl MatchingBlock {
+    /// From `A` (m×n, `n = 2m`) and the positive diagonal `d` (length n) of `D`.
+    ///
+    /// ```
+    /// use tangency::generate::PoissonControl;
+    /// use tangency::iterative::{self, IterativeOptions, SecondBlock};
+    /// let p = PoissonControl::new(10).build()?;
+    /// let opts = IterativeOptions { second: SecondBlock::Matching, ..Default::default() };
+    /// assert!(iterative::solve(&p, &opts)?.iterations < 30);
+    /// # Ok::<(), tangency::Error>(())
+    /// ```
+    pub fn new(a: &Matrix, m: usize, n: usize, d: &[f64]) -> Result<Self> {
+        if n != 2 * m || m == 0 || d.len() != n {
+            return Err(Error::InvalidOption(format!(
+                "the matching Schur block needs A = [A1 A2] with two square blocks (n = 2m, m > 0), \
+                 but A is {m}×{n}; use the cholesky or diagonal Schur block"
+            )));
+        }
+        // σ = sign of tr(B₁B₂ᵀ) = Σ_c Σ_i B₁[i,c]·B₂[i,c] (merge of sorted columns).
+        let (mut c1, mut c2) = (Vec::new(), Vec::new());
+        let mut trace = 0.0;
+        for c in 0..m {
+            column(a, Some((c, 1.0 / d[c].sqrt())), &mut c1);
+            column(a, Some((c + m, 1.0 / d[c + m].sqrt())), &mut c2);
+            let (mut p, mut q) = (0, 0);
+            while p < c1.len() && q < c2.len() {
+                match c1[p].0.cmp(&c2[q].0) {
+                    std::cmp::Ordering::Equal => {
+                        trace += c1[p].1 * c2[q].1;
+                        p += 1;
+                        q += 1;
+                    }
+                    std::cmp::Ordering::Less => p += 1,
+                    std::cmp::Ordering::Greater => q += 1,
+                }
+            }
+        }
+        let sigma = if trace >= 0.0 { 1.0 } else { -1.0 };
+        let mat = scaled_columns(a, m, m, |j| {
+            if j < m {
+                (j, 1.0 / d[j].sqrt())
+            } else {
+                (j - m, sigma / d[j].sqrt())
+            }
+        });
+        let factor = if is_symmetric(&mat) {
+            match CholeskyBlock::from_matrix(&mat, "M") {
+                Ok(c) => MatchingFactor::Cholesky(c),
+                Err(_) => MatchingFactor::Lu(Box::new(lu(&mat)?)),
+            }
+        } else {
+            MatchingFactor::Lu(Box::new(lu(&mat)?))
+        };
+        Ok(MatchingBlock { dim: m, sigma, factor })
+    }
+
+    /// The sign σ chosen.
+    pub fn sigma(&self) -> f64 {
+        self.sigma
+    }
+}
+
+fn lu(mat: &SparseColMat<usize, f64>) -> Result<faer::sparse::linalg::solvers::Lu<usize, f64>> {
+    mat.sp_lu().map_err(|e| {
+        Error::InvalidOption(format!(
+            "the matching Schur block M = B1 ± B2 is singular ({e:?}); use the cholesky or diagonal Schur block"
+        ))
+    })
+}
+
+/// Symmetry of the stored pattern and values (relative to the largest entry, 1e-14).
+fn is_symmetric(mat: &SparseColMat<usize, f64>) -> bool {
+    let Ok(t) = mat.as_ref().transpose().to_col_major() else {
+        return false;
+    };
+    let scale = mat.val().iter().fold(0.0f64, |a, v| a.max(v.abs()));
+    mat.symbolic().col_ptr() == t.symbolic().col_ptr()
+        && mat.symbolic().row_idx() == t.symbolic().row_idx()
+        && mat
+            .val()
+            .iter()
+            .zip(t.val())
+            .all(|(a, b)| (a - b).abs() <= 1e-14 * scale)
+}
+
+impl BlockSolve for MatchingBlock {
+    fn dim(&self) -> usize {
+        self.dim
+    }
+    fn solve(&self, r: &[f64], out: &mut [f64]) {
+        match &self.factor {
+            MatchingFactor::Cholesky(c) => {
+                // M symmetric: P₂⁻¹ = M⁻¹M⁻¹.
+                let mut w = vec![0.0; self.dim];
+                c.solve(r, &mut w);
+                c.solve(&w, out);
+            }
+            MatchingFactor::Lu(lu) => {
+                out.copy_from_slice(r);
+                let mut mat = faer::MatMut::from_column_major_slice_mut(out, self.dim, 1);
+                lu.solve_in_place(mat.as_mut());
+                lu.solve_transpose_in_place(mat);
+            }
+        }
     }
 }
