@@ -209,6 +209,16 @@ pub fn error_json(err: &Error, sizes: Option<(usize, usize)>, method: Option<&st
             o.set("direction", direction.as_slice());
             o.set("slope", *slope);
         }
+        Error::NotConverged {
+            iterations,
+            history_tail,
+            true_residual,
+            ..
+        } => {
+            o.set("iterations", *iterations);
+            o.set("residual_history_tail", &history_tail[..]);
+            o.set("relative_residual", *true_residual);
+        }
         _ => {}
     }
     o

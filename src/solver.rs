@@ -111,6 +111,12 @@ pub struct Options {
     /// ([`crate::iterative::backend`]), with a note. Default: `None`, meaning
     /// [`default_memory_budget`] (half of `MemAvailable`).
     pub memory_budget_bytes: Option<u64>,
+    /// Tolerance of each MINRES solve when auto falls back to it (see
+    /// [`crate::iterative::minres`]). Default: [`crate::iterative::DEFAULT_TOLERANCE`].
+    pub iterative_tol: f64,
+    /// Iteration limit of each MINRES solve when auto falls back to it; reaching it gives
+    /// [`Error::NotConverged`]. Default: [`crate::iterative::DEFAULT_MAX_ITER`].
+    pub iterative_max_iter: usize,
 }
 
 /// Fraction of `MemAvailable` (from `/proc/meminfo`) that [`default_memory_budget`] allows a
@@ -154,6 +160,8 @@ impl Default for Options {
             accept_backward_error: DEFAULT_ACCEPT_BACKWARD_ERROR,
             stages: None,
             memory_budget_bytes: None,
+            iterative_tol: crate::iterative::DEFAULT_TOLERANCE,
+            iterative_max_iter: crate::iterative::DEFAULT_MAX_ITER,
         }
     }
 }
@@ -284,12 +292,17 @@ impl Plan {
                     ))
                 }
             },
-            MethodUsed::Minres => Box::new(crate::iterative::backend::MinresBackend::new(
-                problem,
-                "preconditioned MINRES (Jacobi and sparse-Cholesky Schur blocks, tolerance 1e-10 per solve): \
-                 inertia and verdict NOT verified"
-                    .to_string(),
-            )),
+            MethodUsed::Minres => Box::new(
+                crate::iterative::backend::MinresBackend::new(
+                    problem,
+                    format!(
+                        "preconditioned MINRES (Jacobi and sparse-Cholesky Schur blocks, tolerance {:.0e} per solve): \
+                         inertia and verdict NOT verified",
+                        self.options.iterative_tol
+                    ),
+                )
+                .with_limits(self.options.iterative_tol, self.options.iterative_max_iter),
+            ),
             _ => auto::make_backend(self.method, problem, &self.options),
         };
         backend.factor(problem)?;
@@ -507,6 +520,8 @@ impl Factorization {
             (self.verdict()?, None)
         };
         let t = Instant::now();
+        // Forget failures of solves made outside this call (condition estimates, probes).
+        let _ = self.backend.take_solve_failure();
         let Workspace {
             buf,
             rhs,
@@ -528,6 +543,9 @@ impl Factorization {
             *zi = col[(i, 0)];
         }
         let (backward_error, steps, r_current) = self.refine(rhs, z, r, best, col, stack);
+        if let Some(failure) = self.backend.take_solve_failure() {
+            return Err(failure);
+        }
         if backward_error.is_nan() || backward_error > self.plan.options.accept_backward_error {
             return Err(Error::Inaccurate {
                 backward_error,

@@ -381,6 +381,32 @@ fn auto_picks_minres_only_when_the_direct_factor_exceeds_the_budget() {
 }
 
 #[test]
+fn auto_minres_that_does_not_converge_is_not_converged_not_a_wrong_answer() {
+    let p = PoissonControl::new(30).build().unwrap();
+    let opts = Options {
+        memory_budget_bytes: Some(1024),
+        iterative_max_iter: 1,
+        ..Default::default()
+    };
+    let plan = tangency::Plan::analyze(&p, &opts).unwrap();
+    assert_eq!(plan.method(), MethodUsed::Minres);
+    match plan.factor(&p).unwrap().solve() {
+        Err(tangency::Error::NotConverged {
+            method,
+            iterations,
+            tolerance,
+            true_residual,
+            ..
+        }) => {
+            assert_eq!((method, iterations), ("minres", 1));
+            assert_eq!(tolerance, tangency::iterative::DEFAULT_TOLERANCE);
+            assert!(true_residual > tolerance);
+        }
+        other => panic!("expected NotConverged, got {other:?}"),
+    }
+}
+
+#[test]
 fn minres_on_faer_traits_accepts_a_faer_matrix_and_matches_the_crate_operator() {
     // K assembled densely by nalgebra (outside the crate's operator), handed to MINRES as a
     // faer `Mat` (faer implements `LinOp` for it) with faer's identity preconditioner.

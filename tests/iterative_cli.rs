@@ -210,3 +210,32 @@ fn pcg_iteration_limit_exits_4_and_saddle_is_reported() {
     assert_eq!(v["verdict"], "saddle");
     assert!((v["negative_curvature"].as_f64().unwrap() + 1.0).abs() < 1e-12);
 }
+
+#[test]
+fn auto_falls_back_to_minres_under_a_memory_budget_and_exits_4_when_it_does_not_converge() {
+    let dir = generate(12);
+    let p = dir.path().join("p");
+    let p = p.to_str().unwrap();
+    // Budget 0 MiB: no direct factorization fits.
+    let (code, out, err) = run(&["solve", p, "--memory-budget", "0", "--json"]);
+    assert_eq!(code, 0, "{err}");
+    let v = json(&out);
+    assert_eq!(
+        (v["status"].as_str(), v["method"].as_str()),
+        (Some("solved"), Some("minres"))
+    );
+    assert!(v["verdict"].is_null() && v["inertia"].is_null());
+    let (_, direct, _) = run(&["solve", p, "--json"]);
+    let d = json(&direct);
+    assert_eq!(d["method"], "sparse");
+    let (fo, fd) = (v["objective"].as_f64().unwrap(), d["objective"].as_f64().unwrap());
+    assert!((fo - fd).abs() <= 1e-9 * fd.abs().max(1.0), "{fo} vs {fd}");
+    // One iteration is not enough: status not_converged, exit 4, with the figures.
+    let (code, out, _) = run(&["solve", p, "--memory-budget", "0", "--max-iter", "1", "--json"]);
+    assert_eq!(code, 4);
+    let v = json(&out);
+    assert_eq!(v["status"], "not_converged");
+    assert_eq!(v["iterations"], 1);
+    assert!(!v["residual_history_tail"].as_array().unwrap().is_empty());
+    assert!(v["relative_residual"].as_f64().unwrap() > 1e-10);
+}

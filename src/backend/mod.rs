@@ -67,6 +67,13 @@ pub trait KktBackend: Send + Sync + std::fmt::Debug {
     fn riccati(&self) -> Option<&crate::stagewise::RiccatiBackend> {
         None
     }
+    /// Why the last [`solve_in_place`](KktBackend::solve_in_place) could not deliver a
+    /// solution, for backends whose solves can fail (an iterative method that did not
+    /// converge fills the right-hand side with NaN and reports here). Taken once: the next
+    /// call returns `None`. Default: `None` (direct solves do not fail).
+    fn take_solve_failure(&self) -> Option<crate::error::Error> {
+        None
+    }
     /// Remarks about the last factorization a user should read (for example a fallback
     /// taken, with the reason). Default: none.
     fn notes(&self) -> &[String] {

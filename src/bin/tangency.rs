@@ -50,9 +50,15 @@ enum Command {
         /// --method pcg: of the KKT residual in the 2-norm (both relative to ‖[−c; b]‖).
         #[arg(long, default_value_t = tangency::iterative::DEFAULT_TOLERANCE)]
         tol: f64,
-        /// For --method minres or pcg: iteration limit (exit 4 when reached).
+        /// For --method minres or pcg: iteration limit (exit 4 when reached). --tol and
+        /// --max-iter also bound each MINRES solve when auto falls back to MINRES.
         #[arg(long, default_value_t = tangency::iterative::DEFAULT_MAX_ITER)]
         max_iter: usize,
+        /// For --method auto: memory (MiB) a sparse direct factorization may use; above the
+        /// estimate from the symbolic analysis, auto uses preconditioned MINRES. Default: half
+        /// of the available memory.
+        #[arg(long)]
+        memory_budget: Option<u64>,
         /// For --method minres: second preconditioner block, cholesky (sparse Cholesky of
         /// A diag(H)⁻¹ Aᵀ), diagonal (its diagonal) or matching (Pearson–Wathen: one sparse
         /// factorization of A₁D₁^(-1/2) ± A₂D₂^(-1/2); needs A = [A₁ A₂] with square blocks).
@@ -182,6 +188,7 @@ fn main() -> ExitCode {
             json,
             tol,
             max_iter,
+            memory_budget,
             schur_block,
             sensitivity,
         } => {
@@ -190,7 +197,16 @@ fn main() -> ExitCode {
             } else if method == "minres" {
                 solve_iterative(&dir, tol, max_iter, &schur_block, out.as_deref(), json)
             } else {
-                solve(&dir, &method, stages.as_deref(), out.as_deref(), json, sensitivity)
+                let limits = (tol, max_iter, memory_budget.map(|mib| mib.saturating_mul(1 << 20)));
+                solve(
+                    &dir,
+                    &method,
+                    stages.as_deref(),
+                    limits,
+                    out.as_deref(),
+                    json,
+                    sensitivity,
+                )
             }
         }
         Command::Inspect { dir, json } => inspect(&dir, json),
@@ -277,10 +293,12 @@ fn inspect(dir: &std::path::Path, json: bool) -> ExitCode {
     }
 }
 
+/// `limits`: `(--tol, --max-iter, --memory-budget in bytes)`, for auto's fallback to MINRES.
 fn solve(
     dir: &std::path::Path,
     method: &str,
     stages: Option<&str>,
+    limits: (f64, usize, Option<u64>),
     out: Option<&std::path::Path>,
     json: bool,
     sensitivity: bool,
@@ -338,6 +356,9 @@ fn solve(
     let options = Options {
         method,
         stages,
+        iterative_tol: limits.0,
+        iterative_max_iter: limits.1,
+        memory_budget_bytes: limits.2,
         ..Default::default()
     };
     let plan = match Plan::analyze(&problem, &options) {
@@ -412,16 +433,8 @@ fn solve_iterative(
     use tangency::iterative::{self, history_tail, IterativeOptions, SecondBlock, HISTORY_TAIL};
     let fail = |err: Error, sizes: Option<(usize, usize)>| {
         if json {
-            let mut o = error_json(&err, sizes, Some("minres"), None);
-            if let Error::NotConverged {
-                iterations,
-                history_tail,
-                ..
-            } = &err
-            {
-                o.set("iterations", *iterations);
-                o.set("residual_history_tail", &history_tail[..]);
-            }
+            // error_json carries the iterations and residual tail of a non-convergence.
+            let o = error_json(&err, sizes, Some("minres"), None);
             println!("{o}");
         } else {
             print_error(&err);
@@ -487,16 +500,8 @@ fn solve_pcg(dir: &std::path::Path, tol: f64, max_iter: usize, out: Option<&std:
     use tangency::iterative::{history_tail, pcg, PcgOptions, PcgStatus, HISTORY_TAIL};
     let fail = |err: Error, sizes: Option<(usize, usize)>| {
         if json {
-            let mut o = error_json(&err, sizes, Some("pcg"), None);
-            if let Error::NotConverged {
-                iterations,
-                history_tail,
-                ..
-            } = &err
-            {
-                o.set("iterations", *iterations);
-                o.set("residual_history_tail", &history_tail[..]);
-            }
+            // error_json carries the iterations and residual tail of a non-convergence.
+            let o = error_json(&err, sizes, Some("pcg"), None);
             println!("{o}");
         } else {
             print_error(&err);

@@ -24,7 +24,7 @@ use faer::MatMut;
 
 use super::{minres, BlockDiagonal, FirstBlock, SecondBlock, DEFAULT_MAX_ITER, DEFAULT_TOLERANCE};
 use crate::backend::KktBackend;
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::problem::Problem;
 use crate::solution::{Inertia, MethodUsed};
 
@@ -33,6 +33,10 @@ pub struct MinresBackend {
     problem: Problem,
     precond: Option<BlockDiagonal>,
     notes: Vec<String>,
+    // The first non-converged solve since the last `take_solve_failure` (solves take `&self`).
+    failure: std::sync::Mutex<Option<Error>>,
+    tol: f64,
+    max_iter: usize,
 }
 
 impl std::fmt::Debug for MinresBackend {
@@ -52,7 +56,18 @@ impl MinresBackend {
             problem: problem.clone(),
             precond: None,
             notes: vec![note],
+            failure: std::sync::Mutex::new(None),
+            tol: DEFAULT_TOLERANCE,
+            max_iter: DEFAULT_MAX_ITER,
         }
+    }
+
+    /// Sets the tolerance and iteration limit of each solve (defaults
+    /// [`DEFAULT_TOLERANCE`], [`DEFAULT_MAX_ITER`]).
+    pub fn with_limits(mut self, tol: f64, max_iter: usize) -> MinresBackend {
+        self.tol = tol;
+        self.max_iter = max_iter;
+        self
     }
 }
 
@@ -88,17 +103,48 @@ impl KktBackend for MinresBackend {
             for (i, v) in col.iter_mut().enumerate() {
                 *v = rhs[(i, j)];
             }
-            // A non-converged or refused run leaves NaN: the caller's accuracy check refuses it.
-            let z = match minres(&self.problem, pre, &col, None, DEFAULT_TOLERANCE, DEFAULT_MAX_ITER) {
+            // A non-converged or refused run leaves NaN and records why: the caller reports it
+            // (`NotConverged`, CLI exit 4) instead of using the iterate.
+            let z = match minres(&self.problem, pre, &col, None, self.tol, self.max_iter) {
                 Ok(out) if out.converged => out.z,
-                _ => vec![f64::NAN; col.len()],
+                Ok(out) => {
+                    let mut r = vec![0.0; col.len()];
+                    crate::kkt::residual(&self.problem, &out.z, &col, &mut r);
+                    let norm = |v: &[f64]| v.iter().map(|t| t * t).sum::<f64>().sqrt();
+                    let rhs_norm = norm(&col);
+                    let err = Error::NotConverged {
+                        method: "minres",
+                        iterations: out.iterations,
+                        residual: out.history.last().copied().unwrap_or(f64::NAN),
+                        true_residual: if rhs_norm > 0.0 { norm(&r) / rhs_norm } else { norm(&r) },
+                        tolerance: self.tol,
+                        history_tail: super::history_tail(&out.history, super::HISTORY_TAIL).to_vec(),
+                    };
+                    self.record(err);
+                    vec![f64::NAN; col.len()]
+                }
+                Err(e) => {
+                    self.record(e);
+                    vec![f64::NAN; col.len()]
+                }
             };
             for (i, v) in z.iter().enumerate() {
                 rhs[(i, j)] = *v;
             }
         }
     }
+    fn take_solve_failure(&self) -> Option<Error> {
+        self.failure.lock().ok().and_then(|mut f| f.take())
+    }
     fn notes(&self) -> &[String] {
         &self.notes
+    }
+}
+
+impl MinresBackend {
+    fn record(&self, err: Error) {
+        if let Ok(mut f) = self.failure.lock() {
+            f.get_or_insert(err);
+        }
     }
 }
