@@ -421,6 +421,17 @@ fn solve(
     ExitCode::SUCCESS
 }
 
+/// Reports a failed iterative solve (error JSON with the iterations and residual tail of a
+/// non-convergence, or the message) and returns its exit code.
+fn fail_iterative(err: Error, sizes: Option<(usize, usize)>, method: &str, json: bool) -> ExitCode {
+    if json {
+        println!("{}", error_json(&err, sizes, Some(method), None));
+    } else {
+        print_error(&err);
+    }
+    ExitCode::from(exit_code(&err))
+}
+
 /// `solve --method minres`: the iterative path (inertia and verdict are not observed).
 fn solve_iterative(
     dir: &std::path::Path,
@@ -431,16 +442,7 @@ fn solve_iterative(
     json: bool,
 ) -> ExitCode {
     use tangency::iterative::{self, history_tail, IterativeOptions, SecondBlock, HISTORY_TAIL};
-    let fail = |err: Error, sizes: Option<(usize, usize)>| {
-        if json {
-            // error_json carries the iterations and residual tail of a non-convergence.
-            let o = error_json(&err, sizes, Some("minres"), None);
-            println!("{o}");
-        } else {
-            print_error(&err);
-        }
-        ExitCode::from(exit_code(&err))
-    };
+    let fail = |err: Error, sizes: Option<(usize, usize)>| fail_iterative(err, sizes, "minres", json);
     let second = match schur_block {
         "cholesky" => SecondBlock::Cholesky,
         "diagonal" => SecondBlock::Diagonal,
@@ -498,16 +500,7 @@ fn solve_iterative(
 /// when a direction of negative curvature proved it).
 fn solve_pcg(dir: &std::path::Path, tol: f64, max_iter: usize, out: Option<&std::path::Path>, json: bool) -> ExitCode {
     use tangency::iterative::{history_tail, pcg, PcgOptions, PcgStatus, HISTORY_TAIL};
-    let fail = |err: Error, sizes: Option<(usize, usize)>| {
-        if json {
-            // error_json carries the iterations and residual tail of a non-convergence.
-            let o = error_json(&err, sizes, Some("pcg"), None);
-            println!("{o}");
-        } else {
-            print_error(&err);
-        }
-        ExitCode::from(exit_code(&err))
-    };
+    let fail = |err: Error, sizes: Option<(usize, usize)>| fail_iterative(err, sizes, "pcg", json);
     let problem = match io::read_problem_dir(dir) {
         Ok(p) => p,
         Err(e) => return fail(e, None),
