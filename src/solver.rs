@@ -469,7 +469,7 @@ impl Factorization {
         for (i, zi) in z.iter_mut().enumerate() {
             *zi = col[(i, 0)];
         }
-        let (backward_error, steps) = self.refine(rhs, z, r, best, col, stack);
+        let (backward_error, steps, current) = self.refine(rhs, z, r, best, col, stack);
         if backward_error.is_nan() || backward_error > self.plan.options.accept_backward_error {
             return Err(Error::Inaccurate {
                 backward_error,
@@ -482,8 +482,11 @@ impl Factorization {
         out.x.copy_from_slice(&z[..n]);
         out.y.copy_from_slice(&z[n..]);
         // Residuals of the returned point, with the caller's c and b: r = rhs − K z holds
-        // [−c − Hx − Aᵀy; b − Ax] already.
-        kkt::residual(&self.problem, z, rhs, r);
+        // [−c − Hx − Aᵀy; b − Ax]. Refinement leaves the residual of the returned z in r
+        // unless it had to step back to an earlier iterate.
+        if !current {
+            kkt::residual(&self.problem, z, rhs, r);
+        }
         out.dual_residual = inf_norm(&r[..n]);
         out.primal_residual = inf_norm(&r[n..]);
         // objective = ½xᵀHx + cᵀx = ½xᵀ(Hx + c) + ½cᵀx, with Hx + c = −Aᵀy − r_x.
@@ -543,7 +546,8 @@ impl Factorization {
 
     /// Iterative refinement on the original K: correct `z` until the backward error is at
     /// most the target, stops improving (by at least a factor 2), or the step limit is
-    /// reached. Returns the final backward error and the corrections applied.
+    /// reached. Returns the final backward error, the corrections applied, and whether `r`
+    /// still holds the residual of the returned `z`.
     fn refine(
         &self,
         rhs: &[f64],
@@ -552,7 +556,7 @@ impl Factorization {
         best: &mut [f64],
         col: &mut Mat<f64>,
         stack: &mut MemStack,
-    ) -> (f64, usize) {
+    ) -> (f64, usize, bool) {
         let opts = &self.plan.options;
         let dim = rhs.len();
         best.copy_from_slice(z);
@@ -571,9 +575,9 @@ impl Factorization {
             let next = normwise(r, self.norm_k, z, rhs);
             steps += 1;
             if next.is_nan() || next >= omega {
-                // No progress: keep the better iterate.
+                // No progress: keep the better iterate (r belongs to the rejected one).
                 z.copy_from_slice(best);
-                break;
+                return (omega, steps, false);
             }
             best.copy_from_slice(z);
             let improved_enough = next <= 0.5 * omega;
@@ -582,7 +586,7 @@ impl Factorization {
                 break;
             }
         }
-        (omega, steps)
+        (omega, steps, true)
     }
 }
 

@@ -68,9 +68,9 @@ impl Matrix {
                 let cp = s.symbolic().col_ptr();
                 let ri = s.symbolic().row_idx();
                 let v = s.val();
-                for j in 0..s.ncols() {
-                    for k in cp[j]..cp[j + 1] {
-                        f(ri[k], j, v[k]);
+                for (j, w) in cp.windows(2).enumerate() {
+                    for (&i, &vk) in ri[w[0]..w[1]].iter().zip(&v[w[0]..w[1]]) {
+                        f(i, j, vk);
                     }
                 }
             }
@@ -105,9 +105,9 @@ impl Matrix {
                 let cp = s.symbolic().col_ptr();
                 let ri = s.symbolic().row_idx();
                 let v = s.val();
-                for (j, &xj) in x.iter().enumerate() {
-                    for k in cp[j]..cp[j + 1] {
-                        y[ri[k]] += v[k] * xj;
+                for (w, &xj) in cp.windows(2).zip(x) {
+                    for (&i, &vk) in ri[w[0]..w[1]].iter().zip(&v[w[0]..w[1]]) {
+                        y[i] += vk * xj;
                     }
                 }
             }
@@ -131,10 +131,10 @@ impl Matrix {
                 let cp = s.symbolic().col_ptr();
                 let ri = s.symbolic().row_idx();
                 let v = s.val();
-                for (j, yj) in y.iter_mut().enumerate() {
+                for (w, yj) in cp.windows(2).zip(y.iter_mut()) {
                     let mut acc = 0.0;
-                    for k in cp[j]..cp[j + 1] {
-                        acc += v[k] * x[ri[k]];
+                    for (&i, &vk) in ri[w[0]..w[1]].iter().zip(&v[w[0]..w[1]]) {
+                        acc += vk * x[i];
                     }
                     *yj += acc;
                 }

@@ -44,7 +44,7 @@ use super::StageDims;
 use crate::backend::dense_lblt::{DenseLblt, DenseParams};
 use crate::backend::KktBackend;
 use crate::error::{Block, Error, Result};
-use crate::problem::Problem;
+use crate::problem::{Matrix, Problem};
 use crate::solution::{Inertia, MethodUsed};
 
 /// Largest KKT order for which a singular stage triggers a dense factorization to report
@@ -52,16 +52,13 @@ use crate::solution::{Inertia, MethodUsed};
 /// reported with a note).
 pub const DENSE_FALLBACK_MAX: usize = 4000;
 
-/// Data and factors of one stage.
+/// Factors of one stage; its data blocks live in [`RiccatiBackend::data`] at `base`.
 #[derive(Clone, Debug)]
 struct StageFactor {
-    a: Mat<f64>,
-    b: Mat<f64>,
-    q: Mat<f64>,
-    r: Mat<f64>,
-    s: Mat<f64>,
-    e: Mat<f64>,
-    d: Mat<f64>,
+    /// Offset of the stage's data blocks (`A, B, Q, R, S, D, E`, column-major) in `data`.
+    base: usize,
+    /// Input-constraint rows of the stage.
+    p: usize,
     m: Mat<f64>,
     g: Mat<f64>,
     gamma: Mat<f64>,
@@ -70,16 +67,47 @@ struct StageFactor {
     gain: Mat<f64>,
 }
 
+/// Which data block of a stage.
+#[derive(Copy, Clone, Debug)]
+enum Blk {
+    A,
+    B,
+    Q,
+    R,
+    S,
+    D,
+    E,
+}
+
+/// Entries of the data layout per stage: `A, B, Q` (nx×nx, nx×nu, nx×nx), `R` (nu×nu),
+/// `S` (nu×nx), `D` (p×nx), `E` (p×nu).
+fn stage_len(nx: usize, nu: usize, p: usize) -> usize {
+    2 * nx * nx + 2 * nx * nu + nu * nu + p * (nx + nu)
+}
+
+/// Offset of a block within its stage, and its shape.
+fn blk_place(nx: usize, nu: usize, p: usize, blk: Blk) -> (usize, usize, usize) {
+    let (a, b, q) = (0, nx * nx, nx * nx + nx * nu);
+    let r = q + nx * nx;
+    let s = r + nu * nu;
+    let d = s + nu * nx;
+    let e = d + p * nx;
+    match blk {
+        Blk::A => (a, nx, nx),
+        Blk::B => (b, nx, nu),
+        Blk::Q => (q, nx, nx),
+        Blk::R => (r, nu, nu),
+        Blk::S => (s, nu, nx),
+        Blk::D => (d, p, nx),
+        Blk::E => (e, p, nu),
+    }
+}
+
 impl StageFactor {
-    fn new(nx: usize, nu: usize, p: usize) -> Self {
+    fn new(nx: usize, nu: usize, p: usize, base: usize) -> Self {
         StageFactor {
-            a: Mat::zeros(nx, nx),
-            b: Mat::zeros(nx, nu),
-            q: Mat::zeros(nx, nx),
-            r: Mat::zeros(nu, nu),
-            s: Mat::zeros(nu, nx),
-            e: Mat::zeros(p, nu),
-            d: Mat::zeros(p, nx),
+            base,
+            p,
             m: Mat::zeros(nu, nu),
             g: Mat::zeros(nu, nx),
             gamma: Mat::zeros(nu, nu),
@@ -95,7 +123,43 @@ struct Temps {
     pa: Mat<f64>,
     pb: Mat<f64>,
     gk: Mat<f64>,
+    /// Cholesky factor of `Mₖ` (stages without input constraints).
+    l: Mat<f64>,
+    /// `L⁻¹Gₖ` (stages without input constraints).
+    v: Mat<f64>,
     llt_buf: faer::dyn_stack::MemBuffer,
+}
+
+/// Where each stored entry of the sparse `H` and `A` goes in `data`, computed once per
+/// pattern so a refactorization copies values without classifying entries again (a copy
+/// of the pattern tells whether a problem still has it). Pairs are (index into the
+/// block's stored values, offset in `data`).
+#[derive(Clone, Debug)]
+struct ScatterMap {
+    h_col_ptr: Vec<usize>,
+    h_row_idx: Vec<usize>,
+    a_col_ptr: Vec<usize>,
+    a_row_idx: Vec<usize>,
+    /// `Qₖ, Sₖ, Rₖ` entries of `H`.
+    h_put: Vec<(u32, u32)>,
+    /// `Dₖ, Eₖ` entries of `A`.
+    a_put: Vec<(u32, u32)>,
+    /// `−Aₖ, −Bₖ` entries of `A` (stored negated).
+    a_neg: Vec<(u32, u32)>,
+    /// Unit entries of the identity blocks of `A` (must stay 1).
+    a_unit: Vec<u32>,
+    /// Entries outside the stage structure (must stay 0).
+    h_zero: Vec<u32>,
+    a_zero: Vec<u32>,
+}
+
+/// Outcome of the copy through a [`ScatterMap`].
+enum MapScatter {
+    Done,
+    /// The problem's pattern is not the one of the map.
+    OtherPattern,
+    /// A value breaks the structure (the slow scatter names it).
+    Broken,
 }
 
 impl std::fmt::Debug for Temps {
@@ -134,7 +198,10 @@ pub struct RiccatiBackend {
     n: usize,
     m: usize,
     stages: Vec<StageFactor>,
-    qn: Mat<f64>,
+    /// The stage data blocks (see [`blk_place`]), then `Q_N` at `qn_base`.
+    data: Vec<f64>,
+    qn_base: usize,
+    map: Option<ScatterMap>,
     p: Vec<Mat<f64>>,
     temps: Temps,
     inertia: Inertia,
@@ -145,6 +212,43 @@ pub struct RiccatiBackend {
 
 fn mm(dst: MatMut<'_, f64>, accum: Accum, a: MatRef<'_, f64>, b: MatRef<'_, f64>, alpha: f64) {
     matmul(dst, accum, a, b, alpha, Par::Seq);
+}
+
+/// A data block of one stage as a matrix view.
+fn view<'a>(data: &'a [f64], nx: usize, nu: usize, s: &StageFactor, blk: Blk) -> MatRef<'a, f64> {
+    let (off, r, c) = blk_place(nx, nu, s.p, blk);
+    let at = s.base + off;
+    MatRef::from_column_major_slice(&data[at..at + r * c], r, c)
+}
+
+/// The column-major entries of a data block of one stage.
+fn block<'a>(data: &'a [f64], nx: usize, nu: usize, s: &StageFactor, blk: Blk) -> &'a [f64] {
+    let (off, r, c) = blk_place(nx, nu, s.p, blk);
+    &data[s.base + off..s.base + off + r * c]
+}
+
+/// `y += A·x` for a column-major `A` given by its entries (`y.len()` rows).
+#[inline]
+fn mv_cm(y: &mut [f64], a: &[f64], x: &[f64]) {
+    if y.is_empty() {
+        return;
+    }
+    for (col, &xj) in a.chunks_exact(y.len()).zip(x) {
+        for (yi, aij) in y.iter_mut().zip(col) {
+            *yi += aij * xj;
+        }
+    }
+}
+
+/// `y += Aᵀ·x` for a column-major `A` given by its entries (`x.len()` rows).
+#[inline]
+fn mtv_cm(y: &mut [f64], a: &[f64], x: &[f64]) {
+    if x.is_empty() {
+        return;
+    }
+    for (yj, col) in y.iter_mut().zip(a.chunks_exact(x.len())) {
+        *yj += col.iter().zip(x).map(|(p, q)| p * q).sum::<f64>();
+    }
 }
 
 /// `y += A·x` for a column-major `A`.
@@ -182,21 +286,31 @@ impl RiccatiBackend {
     /// Allocates storage for the structure `st` (no numeric work).
     pub fn new(problem: &Problem, st: Arc<StageStructure>) -> Self {
         let StageDims { nx, nu, horizon } = st.dims();
+        let mut base = 0;
         let stages = (0..horizon)
-            .map(|k| StageFactor::new(nx, nu, st.constraint_rows(k).len()))
+            .map(|k| {
+                let p = st.constraint_rows(k).len();
+                let s = StageFactor::new(nx, nu, p, base);
+                base += stage_len(nx, nu, p);
+                s
+            })
             .collect();
         let llt_req =
             faer::linalg::cholesky::llt::factor::cholesky_in_place_scratch::<f64>(nu, Par::Seq, Default::default());
-        RiccatiBackend {
+        let mut backend = RiccatiBackend {
             n: problem.n(),
             m: problem.m(),
             stages,
-            qn: Mat::zeros(nx, nx),
+            data: vec![0.0; base + nx * nx],
+            qn_base: base,
+            map: None,
             p: (0..=horizon).map(|_| Mat::zeros(nx, nx)).collect(),
             temps: Temps {
                 pa: Mat::zeros(nx, nx),
                 pb: Mat::zeros(nx, nu),
                 gk: Mat::zeros(nu, nx),
+                l: Mat::zeros(nu, nu),
+                v: Mat::zeros(nu, nx),
                 llt_buf: faer::dyn_stack::MemBuffer::new(llt_req),
             },
             inertia: Inertia::default(),
@@ -204,7 +318,116 @@ impl RiccatiBackend {
             notes: Vec::new(),
             fallback: None,
             st,
+        };
+        backend.map = backend.build_map(problem);
+        backend
+    }
+
+    /// Offset in `data` of a stage slot (`None` for slots that are not stored).
+    fn slot_offset(&self, slot: Slot) -> Option<(usize, bool)> {
+        let StageDims { nx, nu, horizon } = self.st.dims();
+        let at = |k: usize, blk: Blk, i: usize, j: usize| {
+            let s = &self.stages[k];
+            let (off, r, _) = blk_place(nx, nu, s.p, blk);
+            s.base + off + j * r + i
+        };
+        match slot {
+            Slot::Q(k, i, j) if k == horizon => Some((self.qn_base + j * nx + i, false)),
+            Slot::Q(k, i, j) => Some((at(k, Blk::Q, i, j), false)),
+            Slot::S(k, i, j) => Some((at(k, Blk::S, i, j), false)),
+            Slot::R(k, i, j) => Some((at(k, Blk::R, i, j), false)),
+            Slot::A(k, i, j) => Some((at(k, Blk::A, i, j), true)),
+            Slot::B(k, i, j) => Some((at(k, Blk::B, i, j), true)),
+            Slot::D(k, i, j) if k < horizon => Some((at(k, Blk::D, i, j), false)),
+            Slot::E(k, i, j) if k < horizon => Some((at(k, Blk::E, i, j), false)),
+            _ => None,
         }
+    }
+
+    /// The [`ScatterMap`] of a sparse problem (`None` for dense storage, or when the
+    /// pattern cannot be described by one: sizes beyond `u32`, incomplete identities).
+    fn build_map(&self, problem: &Problem) -> Option<ScatterMap> {
+        let (Matrix::Sparse(h), Matrix::Sparse(a)) = (problem.hessian(), problem.constraints()) else {
+            return None;
+        };
+        let small = |x: usize| u32::try_from(x).is_ok();
+        if !small(self.data.len()) || !small(h.val().len()) || !small(a.val().len()) {
+            return None;
+        }
+        let mut map = ScatterMap {
+            h_col_ptr: h.symbolic().col_ptr().to_vec(),
+            h_row_idx: h.symbolic().row_idx().to_vec(),
+            a_col_ptr: a.symbolic().col_ptr().to_vec(),
+            a_row_idx: a.symbolic().row_idx().to_vec(),
+            h_put: Vec::new(),
+            a_put: Vec::new(),
+            a_neg: Vec::new(),
+            a_unit: Vec::new(),
+            h_zero: Vec::new(),
+            a_zero: Vec::new(),
+        };
+        let cp = h.symbolic().col_ptr();
+        for j in 0..h.ncols() {
+            for idx in cp[j]..cp[j + 1] {
+                let i = h.symbolic().row_idx()[idx];
+                match self.st.slot_h(i, j).ok().map(|slot| (slot, self.slot_offset(slot))) {
+                    Some((Slot::Mirror, _)) => {}
+                    Some((_, Some((off, _)))) => map.h_put.push((idx as u32, off as u32)),
+                    _ => map.h_zero.push(idx as u32),
+                }
+            }
+        }
+        let cp = a.symbolic().col_ptr();
+        for j in 0..a.ncols() {
+            for idx in cp[j]..cp[j + 1] {
+                let i = a.symbolic().row_idx()[idx];
+                match self
+                    .st
+                    .slot_a(i, j, 1.0)
+                    .ok()
+                    .map(|slot| (slot, self.slot_offset(slot)))
+                {
+                    Some((Slot::Identity, _)) => map.a_unit.push(idx as u32),
+                    Some((_, Some((off, true)))) => map.a_neg.push((idx as u32, off as u32)),
+                    Some((_, Some((off, false)))) => map.a_put.push((idx as u32, off as u32)),
+                    _ => map.a_zero.push(idx as u32),
+                }
+            }
+        }
+        (map.a_unit.len() == self.st.dims().n_dynamics_rows()).then_some(map)
+    }
+
+    /// Copies the values of `problem` into `data` through the map.
+    fn scatter_mapped(&mut self, problem: &Problem) -> MapScatter {
+        let (Some(map), Matrix::Sparse(h), Matrix::Sparse(a)) = (&self.map, problem.hessian(), problem.constraints())
+        else {
+            return MapScatter::OtherPattern;
+        };
+        let same = h.symbolic().col_ptr() == map.h_col_ptr.as_slice()
+            && a.symbolic().col_ptr() == map.a_col_ptr.as_slice()
+            && h.symbolic().row_idx() == map.h_row_idx.as_slice()
+            && a.symbolic().row_idx() == map.a_row_idx.as_slice();
+        if !same {
+            return MapScatter::OtherPattern;
+        }
+        let (hv, av) = (h.val(), a.val());
+        let broken = map.a_unit.iter().any(|&i| av[i as usize] != 1.0)
+            || map.h_zero.iter().any(|&i| hv[i as usize] != 0.0)
+            || map.a_zero.iter().any(|&i| av[i as usize] != 0.0);
+        if broken {
+            return MapScatter::Broken;
+        }
+        let data = &mut self.data;
+        for &(src, dst) in &map.h_put {
+            data[dst as usize] = hv[src as usize];
+        }
+        for &(src, dst) in &map.a_put {
+            data[dst as usize] = av[src as usize];
+        }
+        for &(src, dst) in &map.a_neg {
+            data[dst as usize] = -av[src as usize];
+        }
+        MapScatter::Done
     }
 
     /// The stage dimensions.
@@ -239,32 +462,44 @@ impl RiccatiBackend {
         self.fallback.is_some()
     }
 
+    /// Copies the stage data of `problem` into `data`: through the [`ScatterMap`] when the
+    /// pattern is the mapped one (a new pattern gets a new map), else entry by entry,
+    /// which also names the first entry that breaks the structure.
     fn scatter(&mut self, problem: &Problem) -> Result<()> {
+        match self.scatter_mapped(problem) {
+            MapScatter::Done => return Ok(()),
+            MapScatter::OtherPattern => {
+                self.map = self.build_map(problem);
+                if let MapScatter::Done = self.scatter_mapped(problem) {
+                    return Ok(());
+                }
+            }
+            MapScatter::Broken => {}
+        }
+        self.scatter_checked(problem)
+    }
+
+    /// The entry-by-entry scatter with the structure check.
+    fn scatter_checked(&mut self, problem: &Problem) -> Result<()> {
         let dims = self.st.dims();
         let horizon = dims.horizon;
-        for s in &mut self.stages {
-            s.q.fill(0.0);
-            s.r.fill(0.0);
-            s.s.fill(0.0);
-            s.a.fill(0.0);
-            s.b.fill(0.0);
-            s.e.fill(0.0);
-            s.d.fill(0.0);
-        }
-        self.qn.fill(0.0);
+        self.data.fill(0.0);
         let mut bad: Option<(Block, usize, usize, f64, String)> = None;
         let mut identities = 0usize;
         {
-            let (stages, qn, st) = (&mut self.stages, &mut self.qn, &self.st);
+            let mut data = std::mem::take(&mut self.data);
+            let this = &*self;
+            let mut put = |slot: Slot, v: f64| {
+                if let Some((off, neg)) = this.slot_offset(slot) {
+                    data[off] = if neg { -v } else { v };
+                }
+            };
             problem.hessian().for_each(|i, j, v| {
                 if v == 0.0 || bad.is_some() {
                     return;
                 }
-                match st.slot_h(i, j) {
-                    Ok(Slot::Q(k, a, b)) if k == horizon => qn[(a, b)] = v,
-                    Ok(Slot::Q(k, a, b)) => stages[k].q[(a, b)] = v,
-                    Ok(Slot::S(k, a, b)) => stages[k].s[(a, b)] = v,
-                    Ok(Slot::R(k, a, b)) => stages[k].r[(a, b)] = v,
+                match this.st.slot_h(i, j) {
+                    Ok(slot @ (Slot::Q(..) | Slot::S(..) | Slot::R(..))) => put(slot, v),
                     Ok(_) => {}
                     Err(why) => bad = Some((Block::H, i, j, v, why)),
                 }
@@ -273,12 +508,10 @@ impl RiccatiBackend {
                 if v == 0.0 || bad.is_some() {
                     return;
                 }
-                match st.slot_a(i, j, v) {
-                    Ok(Slot::A(k, a, b)) => stages[k].a[(a, b)] = -v,
-                    Ok(Slot::B(k, a, b)) => stages[k].b[(a, b)] = -v,
+                match this.st.slot_a(i, j, v) {
+                    Ok(slot @ (Slot::A(..) | Slot::B(..))) => put(slot, v),
                     Ok(Slot::Identity) => identities += 1,
-                    Ok(Slot::D(k, l, b)) if k < horizon => stages[k].d[(l, b)] = v,
-                    Ok(Slot::E(k, l, b)) if k < horizon => stages[k].e[(l, b)] = v,
+                    Ok(slot @ (Slot::D(k, ..) | Slot::E(k, ..))) if k < horizon => put(slot, v),
                     Ok(_) => {
                         bad = Some((
                             Block::A,
@@ -291,6 +524,7 @@ impl RiccatiBackend {
                     Err(why) => bad = Some((Block::A, i, j, v, why)),
                 }
             });
+            self.data = data;
         }
         if bad.is_none() && identities != dims.n_dynamics_rows() {
             return Err(Error::StructureChanged {
@@ -317,30 +551,67 @@ impl RiccatiBackend {
     /// Backward pass for stage `k`; returns the stage's reduced inertia, or `Ok(None)` if
     /// the reduced matrix is singular.
     fn stage_backward(&mut self, k: usize) -> Result<Option<Inertia>> {
-        let StageDims { nx: _, nu, .. } = self.st.dims();
+        let StageDims { nx, nu, .. } = self.st.dims();
         let zero_scale = (self.n + self.m) as f64 * f64::EPSILON;
         let (before, after) = self.p.split_at_mut(k + 1);
         let p_next = &after[0];
         let p_k = &mut before[k];
         let t = &mut self.temps;
         let s = &mut self.stages[k];
-        let pdim = s.e.nrows();
-        mm(t.pa.as_mut(), Accum::Replace, p_next.as_ref(), s.a.as_ref(), 1.0);
-        mm(t.pb.as_mut(), Accum::Replace, p_next.as_ref(), s.b.as_ref(), 1.0);
-        s.m.copy_from(&s.r);
-        mm(s.m.as_mut(), Accum::Add, s.b.transpose(), t.pb.as_ref(), 1.0);
+        let data = &self.data;
+        let pdim = s.p;
+        let (a, b) = (view(data, nx, nu, s, Blk::A), view(data, nx, nu, s, Blk::B));
+        mm(t.pa.as_mut(), Accum::Replace, p_next.as_ref(), a, 1.0);
+        mm(t.pb.as_mut(), Accum::Replace, p_next.as_ref(), b, 1.0);
+        s.m.copy_from(view(data, nx, nu, s, Blk::R));
+        mm(s.m.as_mut(), Accum::Add, b.transpose(), t.pb.as_ref(), 1.0);
         symmetrize(s.m.as_mut());
-        s.g.copy_from(&s.s);
-        mm(s.g.as_mut(), Accum::Add, s.b.transpose(), t.pa.as_ref(), 1.0);
+        s.g.copy_from(view(data, nx, nu, s, Blk::S));
+        mm(s.g.as_mut(), Accum::Add, b.transpose(), t.pa.as_ref(), 1.0);
         // P_k starts as F = Q + AᵀPA.
-        p_k.copy_from(&s.q);
-        mm(p_k.as_mut(), Accum::Add, s.a.transpose(), t.pa.as_ref(), 1.0);
+        p_k.copy_from(view(data, nx, nu, s, Blk::Q));
+        mm(p_k.as_mut(), Accum::Add, a.transpose(), t.pa.as_ref(), 1.0);
+        if pdim == 0 {
+            // No input constraints (Z = I): with Mₖ = LLᵀ and V = L⁻¹Gₖ,
+            // Kₖ = −Mₖ⁻¹Gₖ = −L⁻ᵀV, Γₖ = −Mₖ⁻¹ and Pₖ = Fₖ − VᵀV (the general formula below
+            // with Gₖ + MₖKₖ = 0), all by triangular solves on preallocated storage.
+            // An indefinite Mₖ goes on to the general path.
+            t.l.copy_from(&s.m);
+            let stack = MemStack::new(&mut t.llt_buf);
+            let ok = cholesky_in_place(
+                t.l.as_mut(),
+                LltRegularization::default(),
+                Par::Seq,
+                stack,
+                Default::default(),
+            )
+            .is_ok();
+            if ok {
+                t.v.copy_from(&s.g);
+                solve_lower_triangular_in_place(t.l.as_ref(), t.v.as_mut(), Par::Seq);
+                s.gain.copy_from(&t.v);
+                solve_upper_triangular_in_place(t.l.transpose(), s.gain.as_mut(), Par::Seq);
+                for j in 0..nx {
+                    s.gain.col_as_slice_mut(j).iter_mut().for_each(|x| *x = -*x);
+                }
+                mm(p_k.as_mut(), Accum::Add, t.v.transpose(), t.v.as_ref(), -1.0);
+                symmetrize(p_k.as_mut());
+                s.gamma.fill(0.0);
+                for i in 0..nu {
+                    s.gamma[(i, i)] = -1.0;
+                }
+                solve_lower_triangular_in_place(t.l.as_ref(), s.gamma.as_mut(), Par::Seq);
+                solve_upper_triangular_in_place(t.l.transpose(), s.gamma.as_mut(), Par::Seq);
+                symmetrize(s.gamma.as_mut());
+                return Ok(Some(Inertia::new(nu, 0, 0)));
+            }
+        }
         // Null-space basis Z (nu×nr) and T = E⁺.
         let nr = nu - pdim;
         let z: Mat<f64> = if pdim == 0 {
             Mat::identity(nu, nu)
         } else {
-            let svd = s.e.svd().map_err(|_| Error::Stage {
+            let svd = view(data, nx, nu, s, Blk::E).svd().map_err(|_| Error::Stage {
                 stage: k,
                 block: super::StageBlock::E,
                 row: None,
@@ -449,7 +720,8 @@ impl RiccatiBackend {
         }
         mm(s.gain.as_mut(), Accum::Replace, s.gamma.as_ref(), s.g.as_ref(), 1.0);
         if pdim > 0 {
-            mm(s.gain.as_mut(), Accum::Add, s.theta.as_ref(), s.d.as_ref(), -1.0);
+            let d = view(data, nx, nu, s, Blk::D);
+            mm(s.gain.as_mut(), Accum::Add, s.theta.as_ref(), d, -1.0);
         }
         // P_k = F + GᵀK + Kᵀ(G + M K).
         t.gk.copy_from(&s.g);
@@ -481,19 +753,20 @@ impl KktBackend for RiccatiBackend {
         self.indefinite.clear();
         self.notes.clear();
         self.fallback = None;
-        self.p[horizon].copy_from(&self.qn);
+        let qn = MatRef::from_column_major_slice(&self.data[self.qn_base..self.qn_base + nx * nx], nx, nx);
+        self.p[horizon].copy_from(qn);
         let pair = (horizon + 1) * nx;
         let mut inertia = Inertia::new(pair, pair, 0);
         for k in (0..horizon).rev() {
             match self.stage_backward(k)? {
                 Some(stage) => {
-                    let nr = self.stages[k].m.nrows() - self.stages[k].e.nrows();
-                    if stage.positive - self.stages[k].e.nrows() != nr {
+                    let nr = self.stages[k].m.nrows() - self.stages[k].p;
+                    if stage.positive - self.stages[k].p != nr {
                         self.indefinite.push((k, stage));
                         self.notes.push(format!(
                             "stage {k}: the reduced input Hessian Zₖᵀ(Rₖ + BₖᵀPₖ₊₁Bₖ)Zₖ is not positive definite \
                              ({} negative eigenvalue(s)); factored by eigendecomposition, the point is not a minimizer",
-                            stage.negative - self.stages[k].e.nrows()
+                            stage.negative - self.stages[k].p
                         ));
                     }
                     inertia.positive += stage.positive;
@@ -574,18 +847,22 @@ impl KktBackend for RiccatiBackend {
                 let (p_here, p_next) = pv.split_at_mut((k + 1) * nx);
                 sv.copy_from_slice(&p_next[..nx]);
                 mv(sv, &self.p[k + 1], ck);
+                let (a, b) = (
+                    block(&self.data, nx, nu, s, Blk::A),
+                    block(&self.data, nx, nu, s, Blk::B),
+                );
                 // g = r_k + Bᵀ s, with r_k = −z[u_k]
                 let g = &mut gv[k * nu..(k + 1) * nu];
                 for (gi, zi) in g.iter_mut().zip(&z[uo..uo + nu]) {
                     *gi = -zi;
                 }
-                mtv(g, &s.b, sv);
+                mtv_cm(g, b, sv);
                 // f = q_k + Aᵀ s  → p_k accumulates from f
                 let pk = &mut p_here[k * nx..];
                 for (pi, zi) in pk.iter_mut().zip(&z[xo..xo + nx]) {
                     *pi = -zi;
                 }
-                mtv(pk, &s.a, sv);
+                mtv_cm(pk, a, sv);
                 // k_k = Γ g + Θ e
                 let kk = &mut kv[k * nu..(k + 1) * nu];
                 kk.fill(0.0);
@@ -618,8 +895,8 @@ impl KktBackend for RiccatiBackend {
                 mv(uk, &s.gain, xk);
                 // x_{k+1} = A x + B u + c_k
                 tx.copy_from_slice(&tail[n - uo - nu + dims.state_rows(k + 1)..][..nx]);
-                mv(tx, &s.a, xk);
-                mv(tx, &s.b, uk);
+                mv_cm(tx, block(&self.data, nx, nu, s, Blk::A), xk);
+                mv_cm(tx, block(&self.data, nx, nu, s, Blk::B), uk);
                 tail[..nx].copy_from_slice(tx);
             }
             // Input-constraint multipliers ν_k = −Tᵀ(M u + G x + g) (before y overwrites b).
