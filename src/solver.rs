@@ -456,6 +456,7 @@ impl Factorization {
             r,
             best,
             col,
+            grad,
             ..
         } = ws;
         let stack = MemStack::new(buf);
@@ -469,7 +470,7 @@ impl Factorization {
         for (i, zi) in z.iter_mut().enumerate() {
             *zi = col[(i, 0)];
         }
-        let (backward_error, steps, current) = self.refine(rhs, z, r, best, col, stack);
+        let (backward_error, steps, current) = self.refine(rhs, z, r, grad, best, col, stack);
         if backward_error.is_nan() || backward_error > self.plan.options.accept_backward_error {
             return Err(Error::Inaccurate {
                 backward_error,
@@ -485,16 +486,14 @@ impl Factorization {
         // [−c − Hx − Aᵀy; b − Ax]. Refinement leaves the residual of the returned z in r
         // unless it had to step back to an earlier iterate.
         if !current {
-            kkt::residual(&self.problem, z, rhs, r);
+            kkt::residual_and_gradient(&self.problem, z, rhs, r, grad);
         }
         out.dual_residual = inf_norm(&r[..n]);
         out.primal_residual = inf_norm(&r[n..]);
-        // objective = ½xᵀHx + cᵀx = ½xᵀ(Hx + c) + ½cᵀx, with Hx + c = −Aᵀy − r_x.
+        // objective = ½xᵀHx + cᵀx = ½xᵀ(Hx + c) + ½cᵀx, with Hx + c left in grad by the
+        // residual of the returned point.
         let x = &out.x;
-        let r_x = &mut best[..n];
-        r_x.iter_mut().zip(c).for_each(|(v, ci)| *v = *ci);
-        self.problem.h.mul_add(x, r_x);
-        out.objective = 0.5 * crate::problem::dot(x, r_x) + 0.5 * crate::problem::dot(c, x);
+        out.objective = 0.5 * crate::problem::dot(x, grad) + 0.5 * crate::problem::dot(c, x);
         out.backward_error = backward_error;
         out.refinement_steps = steps;
         out.inertia = self.backend.inertia();
@@ -547,12 +546,14 @@ impl Factorization {
     /// Iterative refinement on the original K: correct `z` until the backward error is at
     /// most the target, stops improving (by at least a factor 2), or the step limit is
     /// reached. Returns the final backward error, the corrections applied, and whether `r`
-    /// still holds the residual of the returned `z`.
+    /// and `grad` (`Hx + c`) still belong to the returned `z`.
+    #[allow(clippy::too_many_arguments)]
     fn refine(
         &self,
         rhs: &[f64],
         z: &mut [f64],
         r: &mut [f64],
+        grad: &mut [f64],
         best: &mut [f64],
         col: &mut Mat<f64>,
         stack: &mut MemStack,
@@ -560,7 +561,7 @@ impl Factorization {
         let opts = &self.plan.options;
         let dim = rhs.len();
         best.copy_from_slice(z);
-        kkt::residual(&self.problem, z, rhs, r);
+        kkt::residual_and_gradient(&self.problem, z, rhs, r, grad);
         let mut omega = normwise(r, self.norm_k, z, rhs);
         let mut steps = 0;
         while steps < opts.max_refinement_steps && omega > opts.refinement_target && omega.is_finite() {
@@ -571,11 +572,11 @@ impl Factorization {
             for i in 0..dim {
                 z[i] += col[(i, 0)];
             }
-            kkt::residual(&self.problem, z, rhs, r);
+            kkt::residual_and_gradient(&self.problem, z, rhs, r, grad);
             let next = normwise(r, self.norm_k, z, rhs);
             steps += 1;
             if next.is_nan() || next >= omega {
-                // No progress: keep the better iterate (r belongs to the rejected one).
+                // No progress: keep the better iterate (r and grad belong to the rejected one).
                 z.copy_from_slice(best);
                 return (omega, steps, false);
             }
@@ -591,7 +592,7 @@ impl Factorization {
 }
 
 /// Reusable scratch memory for [`Factorization::solve_into`]: the backend's solve scratch
-/// (faer `MemBuffer`) plus a few vectors of length `n + m`.
+/// (faer `MemBuffer`) plus a few vectors of length `n + m` and one of length `n`.
 pub struct Workspace {
     n: usize,
     m: usize,
@@ -602,6 +603,7 @@ pub struct Workspace {
     r: Vec<f64>,
     best: Vec<f64>,
     col: Mat<f64>,
+    grad: Vec<f64>,
 }
 
 impl std::fmt::Debug for Workspace {
@@ -627,12 +629,13 @@ impl Workspace {
             r: vec![0.0; dim],
             best: vec![0.0; dim],
             col: Mat::zeros(dim, 1),
+            grad: vec![0.0; n],
         }
     }
 
     /// Bytes held by this workspace.
     pub fn memory_usage(&self) -> usize {
-        self.buf_bytes + 5 * (self.n + self.m) * std::mem::size_of::<f64>()
+        self.buf_bytes + (5 * (self.n + self.m) + self.n) * std::mem::size_of::<f64>()
     }
 
     fn check(&self, n: usize, m: usize) -> Result<()> {

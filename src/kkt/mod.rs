@@ -57,6 +57,28 @@ pub fn residual(problem: &Problem, z: &[f64], rhs: &[f64], out: &mut [f64]) {
     }
 }
 
+/// [`residual`] that also copies `H·x − rhs_x` (= `Hx + c` for `rhs = [−c; b]`, the
+/// gradient of the objective) into `grad` (length n) on the way: the same operations in
+/// the same order, so `out` is bitwise the result of [`residual`] and `grad` bitwise that
+/// of `grad = c; H.mul_add(x, grad)`.
+pub fn residual_and_gradient(problem: &Problem, z: &[f64], rhs: &[f64], out: &mut [f64], grad: &mut [f64]) {
+    let n = problem.n();
+    for (o, r) in out.iter_mut().zip(rhs) {
+        *o = -r;
+    }
+    let (x, y) = z.split_at(n);
+    {
+        let (ox, oy) = out.split_at_mut(n);
+        problem.hessian().mul_add(x, ox);
+        grad.copy_from_slice(ox);
+        problem.constraints().tr_mul_add(y, ox);
+        problem.constraints().mul_add(x, oy);
+    }
+    for o in out.iter_mut() {
+        *o = -*o;
+    }
+}
+
 /// `‖K‖∞` (largest absolute row sum) of the original K.
 pub fn norm_inf(problem: &Problem) -> f64 {
     norm_inf_with(problem, &mut vec![0.0f64; dim(problem)])

@@ -36,7 +36,7 @@ use faer::dyn_stack::{MemStack, StackReq};
 use faer::linalg::cholesky::llt::factor::{cholesky_in_place, LltRegularization};
 use faer::linalg::matmul::matmul;
 use faer::linalg::triangular_solve::{solve_lower_triangular_in_place, solve_upper_triangular_in_place};
-use faer::prelude::ReborrowMut;
+use faer::prelude::{Reborrow, ReborrowMut};
 use faer::{Accum, Mat, MatMut, MatRef, Par, Side};
 
 use super::structure::{Slot, StageStructure};
@@ -247,7 +247,7 @@ fn mtv_cm(y: &mut [f64], a: &[f64], x: &[f64]) {
         return;
     }
     for (yj, col) in y.iter_mut().zip(a.chunks_exact(x.len())) {
-        *yj += col.iter().zip(x).map(|(p, q)| p * q).sum::<f64>();
+        *yj += dot(col, x);
     }
 }
 
@@ -266,9 +266,30 @@ fn mv(y: &mut [f64], a: &Mat<f64>, x: &[f64]) {
 #[inline]
 fn mtv(y: &mut [f64], a: &Mat<f64>, x: &[f64]) {
     for (j, yj) in y.iter_mut().enumerate().take(a.ncols()) {
-        let col = a.col_as_slice(j);
-        *yj += col.iter().zip(x).map(|(p, q)| p * q).sum::<f64>();
+        *yj += dot(a.col_as_slice(j), x);
     }
+}
+
+/// `aᵀb` over the common length, with four partial sums (the short dot products of the
+/// sweeps then vectorize; the summation order differs from a left-to-right sum only by
+/// rounding).
+#[inline]
+fn dot(a: &[f64], b: &[f64]) -> f64 {
+    let len = a.len().min(b.len());
+    let (ca, cb) = (a[..len].chunks_exact(4), b[..len].chunks_exact(4));
+    let (ra, rb) = (ca.remainder(), cb.remainder());
+    let mut acc = [0.0f64; 4];
+    for (p, q) in ca.zip(cb) {
+        acc[0] += p[0] * q[0];
+        acc[1] += p[1] * q[1];
+        acc[2] += p[2] * q[2];
+        acc[3] += p[3] * q[3];
+    }
+    let mut sum = (acc[0] + acc[2]) + (acc[1] + acc[3]);
+    for (p, q) in ra.iter().zip(rb) {
+        sum += p * q;
+    }
+    sum
 }
 
 fn symmetrize(mut p: MatMut<'_, f64>) {
@@ -831,8 +852,8 @@ impl KktBackend for RiccatiBackend {
         let (ev, _) = rest.split_at_mut(nu);
         let dims = self.st.dims();
         for col in 0..rhs.ncols() {
-            for (i, zi) in z.iter_mut().enumerate() {
-                *zi = rhs[(i, col)];
+            for (zi, v) in z.iter_mut().zip(rhs.rb().col(col).iter()) {
+                *zi = *v;
             }
             // Backward sweep: p_N = q_N = −z[x_N].
             let xn = dims.x_offset(horizon);
@@ -875,11 +896,14 @@ impl KktBackend for RiccatiBackend {
                     }
                     mv(kk, &s.theta, e);
                 }
-                // p_k = f + Gᵀ k + Kᵀ (g + M k)
+                // p_k = f + Gᵀ k + Kᵀ (g + M k); without input constraints k = −M⁻¹g, so
+                // g + M k = 0 and the last term drops.
                 mtv(pk, &s.g, kk);
-                tu.copy_from_slice(g);
-                mv(tu, &s.m, kk);
-                mtv(pk, &s.gain, tu);
+                if !rows.is_empty() {
+                    tu.copy_from_slice(g);
+                    mv(tu, &s.m, kk);
+                    mtv(pk, &s.gain, tu);
+                }
             }
             // Forward sweep.
             for i in 0..nx {
@@ -927,9 +951,8 @@ impl KktBackend for RiccatiBackend {
                     *yi = -ti;
                 }
             }
-            let mut out = rhs.rb_mut().col_mut(col);
-            for (i, zi) in z.iter().enumerate() {
-                out[i] = *zi;
+            for (o, zi) in rhs.rb_mut().col_mut(col).iter_mut().zip(z.iter()) {
+                *o = *zi;
             }
         }
     }
