@@ -65,6 +65,11 @@ struct StageFactor {
     theta: Mat<f64>,
     t: Mat<f64>,
     gain: Mat<f64>,
+    /// Column-major copies for the sweeps, laid out so their loops run over nx entries:
+    /// `Gₖᵀ` and `Kₖᵀ` (nx×nu) and `Γₖ` (nu×nu).
+    gt: Vec<f64>,
+    kt: Vec<f64>,
+    gam: Vec<f64>,
 }
 
 /// Which data block of a stage.
@@ -114,6 +119,9 @@ impl StageFactor {
             theta: Mat::zeros(nu, p),
             t: Mat::zeros(nu, p),
             gain: Mat::zeros(nu, nx),
+            gt: vec![0.0; nx * nu],
+            kt: vec![0.0; nx * nu],
+            gam: vec![0.0; nu * nu],
         }
     }
 }
@@ -213,6 +221,8 @@ pub struct RiccatiBackend {
     qn_base: usize,
     map: Option<ScatterMap>,
     p: Vec<Mat<f64>>,
+    /// The `Pₖ`, column-major one after the other, for the sweeps.
+    p_flat: Vec<f64>,
     temps: Temps,
     inertia: Inertia,
     indefinite: Vec<(usize, Inertia)>,
@@ -336,6 +346,7 @@ impl RiccatiBackend {
             qn_base: base,
             map: None,
             p: (0..=horizon).map(|_| Mat::zeros(nx, nx)).collect(),
+            p_flat: vec![0.0; (horizon + 1) * nx * nx],
             temps: Temps {
                 pab: Mat::zeros(nx, nx + nu),
                 hk: Mat::zeros(nx + nu, nx + nu),
@@ -804,6 +815,33 @@ impl RiccatiBackend {
         Ok(Some(Inertia::new(reduced.positive + pdim, reduced.negative + pdim, 0)))
     }
 
+    /// Copies the factors of stage `k` (and `Pₖ`) into the column-major arrays the sweeps
+    /// read (`k = N`: `P_N` only).
+    fn flatten(&mut self, k: usize) {
+        let StageDims { nx, nu, horizon } = self.st.dims();
+        let pk = &self.p[k];
+        for (j, dst) in self.p_flat[k * nx * nx..(k + 1) * nx * nx]
+            .chunks_exact_mut(nx.max(1))
+            .enumerate()
+        {
+            dst.copy_from_slice(&pk.col_as_slice(j)[..nx]);
+        }
+        if k == horizon {
+            return;
+        }
+        let s = &mut self.stages[k];
+        for j in 0..nx {
+            let (g, kg) = (s.g.col_as_slice(j), s.gain.col_as_slice(j));
+            for i in 0..nu {
+                s.gt[i * nx + j] = g[i];
+                s.kt[i * nx + j] = kg[i];
+            }
+        }
+        for j in 0..nu {
+            s.gam[j * nu..(j + 1) * nu].copy_from_slice(&s.gamma.col_as_slice(j)[..nu]);
+        }
+    }
+
     fn scratch_len(&self) -> usize {
         let StageDims { nx, nu, horizon } = self.st.dims();
         self.n + self.m + (horizon + 1) * nx + 2 * horizon * nu + 2 * nx + 2 * nu
@@ -827,11 +865,13 @@ impl KktBackend for RiccatiBackend {
         self.fallback = None;
         let qn = MatRef::from_column_major_slice(&self.data[self.qn_base..self.qn_base + nx * nx], nx, nx);
         self.p[horizon].copy_from(qn);
+        self.flatten(horizon);
         let pair = (horizon + 1) * nx;
         let mut inertia = Inertia::new(pair, pair, 0);
         for k in (0..horizon).rev() {
             match self.stage_backward(k)? {
                 Some(stage) => {
+                    self.flatten(k);
                     let nr = self.stages[k].m.nrows() - self.stages[k].p;
                     if stage.positive - self.stages[k].p != nr {
                         self.indefinite.push((k, stage));
@@ -918,7 +958,7 @@ impl KktBackend for RiccatiBackend {
                 // s = P_{k+1} c_k + p_{k+1}
                 let (p_here, p_next) = pv.split_at_mut((k + 1) * nx);
                 sv.copy_from_slice(&p_next[..nx]);
-                mv(sv, &self.p[k + 1], ck);
+                mv_cm(sv, &self.p_flat[(k + 1) * nx * nx..(k + 2) * nx * nx], ck);
                 let (a, b) = (
                     block(&self.data, nx, nu, s, Blk::A),
                     block(&self.data, nx, nu, s, Blk::B),
@@ -938,7 +978,7 @@ impl KktBackend for RiccatiBackend {
                 // k_k = Γ g + Θ e
                 let kk = &mut kv[k * nu..(k + 1) * nu];
                 kk.fill(0.0);
-                mv(kk, &s.gamma, g);
+                mv_cm(kk, &s.gam, g);
                 let rows = self.st.constraint_rows(k);
                 if !rows.is_empty() {
                     let e = &mut ev[..rows.len()];
@@ -949,11 +989,11 @@ impl KktBackend for RiccatiBackend {
                 }
                 // p_k = f + Gᵀ k + Kᵀ (g + M k); without input constraints k = −M⁻¹g, so
                 // g + M k = 0 and the last term drops.
-                mtv(pk, &s.g, kk);
+                mv_cm(&mut pk[..nx], &s.gt, kk);
                 if !rows.is_empty() {
                     tu.copy_from_slice(g);
                     mv(tu, &s.m, kk);
-                    mtv(pk, &s.gain, tu);
+                    mv_cm(&mut pk[..nx], &s.kt, tu);
                 }
             }
             // Forward sweep.
@@ -963,16 +1003,16 @@ impl KktBackend for RiccatiBackend {
             for k in 0..horizon {
                 let s = &self.stages[k];
                 let (xo, uo) = (dims.x_offset(k), dims.u_offset(k));
+                let w = nx + nu;
+                // u_k = K x_k + k_k
                 let (head, tail) = z.split_at_mut(uo);
-                let xk = &head[xo..xo + nx];
-                let (uk, tail) = tail.split_at_mut(nu);
+                let uk = &mut tail[..nu];
                 uk.copy_from_slice(&kv[k * nu..(k + 1) * nu]);
-                mv(uk, &s.gain, xk);
-                // x_{k+1} = A x + B u + c_k
-                tx.copy_from_slice(&tail[n - uo - nu + dims.state_rows(k + 1)..][..nx]);
-                mv_cm(tx, block(&self.data, nx, nu, s, Blk::A), xk);
-                mv_cm(tx, block(&self.data, nx, nu, s, Blk::B), uk);
-                tail[..nx].copy_from_slice(tx);
+                mtv_cm(uk, &s.kt, &head[xo..xo + nx]);
+                // x_{k+1} = [A B][x_k; u_k] + c_k ([A B] is stored contiguously)
+                tx.copy_from_slice(&z[n + dims.state_rows(k + 1)..][..nx]);
+                mv_cm(tx, &self.data[s.base..s.base + nx * w], &z[xo..xo + w]);
+                z[xo + w..xo + w + nx].copy_from_slice(tx);
             }
             // Input-constraint multipliers ν_k = −Tᵀ(M u + G x + g) (before y overwrites b).
             for k in 0..horizon {
@@ -996,7 +1036,7 @@ impl KktBackend for RiccatiBackend {
             for k in 0..=horizon {
                 let xo = dims.x_offset(k);
                 tx.copy_from_slice(&pv[k * nx..(k + 1) * nx]);
-                mv(tx, &self.p[k], &z[xo..xo + nx]);
+                mv_cm(tx, &self.p_flat[k * nx * nx..(k + 1) * nx * nx], &z[xo..xo + nx]);
                 let yo = n + dims.state_rows(k);
                 for (yi, ti) in z[yo..yo + nx].iter_mut().zip(tx.iter()) {
                     *yi = -ti;
