@@ -220,8 +220,7 @@ pub struct RiccatiBackend {
     data: Vec<f64>,
     qn_base: usize,
     map: Option<ScatterMap>,
-    p: Vec<Mat<f64>>,
-    /// The `Pₖ`, column-major one after the other, for the sweeps.
+    /// The `Pₖ` (nx×nx), column-major one after the other.
     p_flat: Vec<f64>,
     temps: Temps,
     inertia: Inertia,
@@ -345,7 +344,6 @@ impl RiccatiBackend {
             data: vec![0.0; base + nx * nx],
             qn_base: base,
             map: None,
-            p: (0..=horizon).map(|_| Mat::zeros(nx, nx)).collect(),
             p_flat: vec![0.0; (horizon + 1) * nx * nx],
             temps: Temps {
                 pab: Mat::zeros(nx, nx + nu),
@@ -498,7 +496,8 @@ impl RiccatiBackend {
     /// # Panics
     /// If `k > N`.
     pub fn value_matrix(&self, k: usize) -> MatRef<'_, f64> {
-        self.p[k].as_ref()
+        let nx = self.st.dims().nx;
+        MatRef::from_column_major_slice(&self.p_flat[k * nx * nx..(k + 1) * nx * nx], nx, nx)
     }
 
     /// Stages whose reduced matrix `ZₖᵀMₖZₖ` (`Mₖ = Rₖ + BₖᵀPₖ₊₁Bₖ`) is not positive
@@ -603,9 +602,9 @@ impl RiccatiBackend {
     fn stage_backward(&mut self, k: usize) -> Result<Option<Inertia>> {
         let StageDims { nx, nu, .. } = self.st.dims();
         let zero_scale = (self.n + self.m) as f64 * f64::EPSILON;
-        let (before, after) = self.p.split_at_mut(k + 1);
-        let p_next = &after[0];
-        let p_k = &mut before[k];
+        let (before, after) = self.p_flat.split_at_mut((k + 1) * nx * nx);
+        let p_next = MatRef::from_column_major_slice(&after[..nx * nx], nx, nx);
+        let pk_flat = &mut before[k * nx * nx..];
         let t = &mut self.temps;
         let s = &mut self.stages[k];
         let data = &self.data;
@@ -615,7 +614,7 @@ impl RiccatiBackend {
         // separate products (measured with callgrind on the nx = 12, nu = 4 bench).
         let w = nx + nu;
         let ab = MatRef::from_column_major_slice(&data[s.base..s.base + nx * w], nx, w);
-        mm(t.pab.as_mut(), Accum::Replace, p_next.as_ref(), ab, 1.0);
+        mm(t.pab.as_mut(), Accum::Replace, p_next, ab, 1.0);
         mm(t.hk.as_mut(), Accum::Replace, ab.transpose(), t.pab.as_ref(), 1.0);
         // P_k starts as F = Q + AᵀPA; G = S + BᵀPA; M = R + BᵀPB.
         let (q, r, sc) = (
@@ -625,8 +624,7 @@ impl RiccatiBackend {
         );
         for j in 0..nx {
             let hcol = t.hk.col_as_slice(j);
-            for ((dst, h), qv) in p_k
-                .col_as_slice_mut(j)
+            for ((dst, h), qv) in pk_flat[j * nx..(j + 1) * nx]
                 .iter_mut()
                 .zip(&hcol[..nx])
                 .zip(&q[j * nx..(j + 1) * nx])
@@ -654,6 +652,7 @@ impl RiccatiBackend {
             }
         }
         symmetrize(s.m.as_mut());
+        let mut p_k = MatMut::from_column_major_slice_mut(pk_flat, nx, nx);
         if pdim == 0 {
             // No input constraints (Z = I): with Mₖ = LLᵀ and V = L⁻¹Gₖ,
             // Kₖ = −Mₖ⁻¹Gₖ = −L⁻ᵀV, Γₖ = −Mₖ⁻¹ and Pₖ = Fₖ − VᵀV (the general formula below
@@ -677,8 +676,8 @@ impl RiccatiBackend {
                 for j in 0..nx {
                     s.gain.col_as_slice_mut(j).iter_mut().for_each(|x| *x = -*x);
                 }
-                mm(p_k.as_mut(), Accum::Add, t.v.transpose(), t.v.as_ref(), -1.0);
-                symmetrize(p_k.as_mut());
+                mm(p_k.rb_mut(), Accum::Add, t.v.transpose(), t.v.as_ref(), -1.0);
+                symmetrize(p_k.rb_mut());
                 s.gamma.fill(0.0);
                 for i in 0..nu {
                     s.gamma[(i, i)] = -1.0;
@@ -809,26 +808,15 @@ impl RiccatiBackend {
         // P_k = F + GᵀK + Kᵀ(G + M K).
         t.gk.copy_from(&s.g);
         mm(t.gk.as_mut(), Accum::Add, s.m.as_ref(), s.gain.as_ref(), 1.0);
-        mm(p_k.as_mut(), Accum::Add, s.g.transpose(), s.gain.as_ref(), 1.0);
-        mm(p_k.as_mut(), Accum::Add, s.gain.transpose(), t.gk.as_ref(), 1.0);
-        symmetrize(p_k.as_mut());
+        mm(p_k.rb_mut(), Accum::Add, s.g.transpose(), s.gain.as_ref(), 1.0);
+        mm(p_k.rb_mut(), Accum::Add, s.gain.transpose(), t.gk.as_ref(), 1.0);
+        symmetrize(p_k.rb_mut());
         Ok(Some(Inertia::new(reduced.positive + pdim, reduced.negative + pdim, 0)))
     }
 
-    /// Copies the factors of stage `k` (and `Pₖ`) into the column-major arrays the sweeps
-    /// read (`k = N`: `P_N` only).
+    /// Copies the factors of stage `k` into the column-major arrays the sweeps read.
     fn flatten(&mut self, k: usize) {
-        let StageDims { nx, nu, horizon } = self.st.dims();
-        let pk = &self.p[k];
-        for (j, dst) in self.p_flat[k * nx * nx..(k + 1) * nx * nx]
-            .chunks_exact_mut(nx.max(1))
-            .enumerate()
-        {
-            dst.copy_from_slice(&pk.col_as_slice(j)[..nx]);
-        }
-        if k == horizon {
-            return;
-        }
+        let StageDims { nx, nu, .. } = self.st.dims();
         let s = &mut self.stages[k];
         for j in 0..nx {
             let (g, kg) = (s.g.col_as_slice(j), s.gain.col_as_slice(j));
@@ -863,9 +851,7 @@ impl KktBackend for RiccatiBackend {
         self.indefinite.clear();
         self.notes.clear();
         self.fallback = None;
-        let qn = MatRef::from_column_major_slice(&self.data[self.qn_base..self.qn_base + nx * nx], nx, nx);
-        self.p[horizon].copy_from(qn);
-        self.flatten(horizon);
+        self.p_flat[horizon * nx * nx..].copy_from_slice(&self.data[self.qn_base..self.qn_base + nx * nx]);
         let pair = (horizon + 1) * nx;
         let mut inertia = Inertia::new(pair, pair, 0);
         for k in (0..horizon).rev() {
