@@ -49,8 +49,7 @@ pub fn residual(problem: &Problem, z: &[f64], rhs: &[f64], out: &mut [f64]) {
     {
         let (ox, oy) = out.split_at_mut(n);
         problem.hessian().mul_add(x, ox);
-        problem.constraints().tr_mul_add(y, ox);
-        problem.constraints().mul_add(x, oy);
+        problem.constraints().mul_add_both(x, oy, y, ox);
     }
     for o in out.iter_mut() {
         *o = -*o;
@@ -71,8 +70,7 @@ pub fn residual_and_gradient(problem: &Problem, z: &[f64], rhs: &[f64], out: &mu
         let (ox, oy) = out.split_at_mut(n);
         problem.hessian().mul_add(x, ox);
         grad.copy_from_slice(ox);
-        problem.constraints().tr_mul_add(y, ox);
-        problem.constraints().mul_add(x, oy);
+        problem.constraints().mul_add_both(x, oy, y, ox);
     }
     for o in out.iter_mut() {
         *o = -*o;
