@@ -158,17 +158,31 @@ struct ScatterMap {
     h_row_idx: Vec<usize>,
     a_col_ptr: Vec<usize>,
     a_row_idx: Vec<usize>,
-    /// `Qₖ, Sₖ, Rₖ` entries of `H`.
-    h_put: Vec<(u32, u32)>,
-    /// `Dₖ, Eₖ` entries of `A`.
-    a_put: Vec<(u32, u32)>,
-    /// `−Aₖ, −Bₖ` entries of `A` (stored negated).
-    a_neg: Vec<(u32, u32)>,
+    /// `Qₖ, Sₖ, Rₖ` entries of `H`, as runs (see [`runs`]).
+    h_put: Vec<(u32, u32, u32)>,
+    /// `Dₖ, Eₖ` entries of `A`, as runs.
+    a_put: Vec<(u32, u32, u32)>,
+    /// `−Aₖ, −Bₖ` entries of `A` (stored negated), as runs.
+    a_neg: Vec<(u32, u32, u32)>,
     /// Unit entries of the identity blocks of `A` (must stay 1).
     a_unit: Vec<u32>,
     /// Entries outside the stage structure (must stay 0).
     h_zero: Vec<u32>,
     a_zero: Vec<u32>,
+}
+
+/// Merges (source, destination) pairs, in storage order, into runs
+/// (source, destination, length) of consecutive entries on both sides: a dense stage block
+/// stored column by column becomes one run per block column, copied like a slice.
+fn runs(pairs: &[(u32, u32)]) -> Vec<(u32, u32, u32)> {
+    let mut out: Vec<(u32, u32, u32)> = Vec::new();
+    for &(src, dst) in pairs {
+        match out.last_mut() {
+            Some((s, d, len)) if *s + *len == src && *d + *len == dst => *len += 1,
+            _ => out.push((src, dst, 1)),
+        }
+    }
+    out
 }
 
 /// Outcome of the copy through a [`ScatterMap`].
@@ -394,6 +408,7 @@ impl RiccatiBackend {
         if !small(self.data.len()) || !small(h.val().len()) || !small(a.val().len()) {
             return None;
         }
+        let (mut h_put, mut a_put, mut a_neg) = (Vec::new(), Vec::new(), Vec::new());
         let mut map = ScatterMap {
             verified: None,
             h_col_ptr: h.symbolic().col_ptr().to_vec(),
@@ -413,7 +428,7 @@ impl RiccatiBackend {
                 let i = h.symbolic().row_idx()[idx];
                 match self.st.slot_h(i, j).ok().map(|slot| (slot, self.slot_offset(slot))) {
                     Some((Slot::Mirror, _)) => {}
-                    Some((_, Some((off, _)))) => map.h_put.push((idx as u32, off as u32)),
+                    Some((_, Some((off, _)))) => h_put.push((idx as u32, off as u32)),
                     _ => map.h_zero.push(idx as u32),
                 }
             }
@@ -429,12 +444,13 @@ impl RiccatiBackend {
                     .map(|slot| (slot, self.slot_offset(slot)))
                 {
                     Some((Slot::Identity, _)) => map.a_unit.push(idx as u32),
-                    Some((_, Some((off, true)))) => map.a_neg.push((idx as u32, off as u32)),
-                    Some((_, Some((off, false)))) => map.a_put.push((idx as u32, off as u32)),
+                    Some((_, Some((off, true)))) => a_neg.push((idx as u32, off as u32)),
+                    Some((_, Some((off, false)))) => a_put.push((idx as u32, off as u32)),
                     _ => map.a_zero.push(idx as u32),
                 }
             }
         }
+        (map.h_put, map.a_put, map.a_neg) = (runs(&h_put), runs(&a_put), runs(&a_neg));
         (map.a_unit.len() == self.st.dims().n_dynamics_rows()).then_some(map)
     }
 
@@ -466,14 +482,17 @@ impl RiccatiBackend {
             return MapScatter::Broken;
         }
         let data = &mut self.data;
-        for &(src, dst) in &map.h_put {
-            data[dst as usize] = hv[src as usize];
+        for (vals, list) in [(hv, &map.h_put), (av, &map.a_put)] {
+            for &(src, dst, len) in list {
+                let (src, dst, len) = (src as usize, dst as usize, len as usize);
+                data[dst..dst + len].copy_from_slice(&vals[src..src + len]);
+            }
         }
-        for &(src, dst) in &map.a_put {
-            data[dst as usize] = av[src as usize];
-        }
-        for &(src, dst) in &map.a_neg {
-            data[dst as usize] = -av[src as usize];
+        for &(src, dst, len) in &map.a_neg {
+            let (src, dst, len) = (src as usize, dst as usize, len as usize);
+            for (d, v) in data[dst..dst + len].iter_mut().zip(&av[src..src + len]) {
+                *d = -v;
+            }
         }
         MapScatter::Done
     }
