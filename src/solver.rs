@@ -529,6 +529,7 @@ impl Factorization {
             r,
             best,
             col,
+            grad,
             ..
         } = ws;
         let stack = MemStack::new(buf);
@@ -542,7 +543,7 @@ impl Factorization {
         for (i, zi) in z.iter_mut().enumerate() {
             *zi = col[(i, 0)];
         }
-        let (backward_error, steps, r_current) = self.refine(rhs, z, r, best, col, stack);
+        let (backward_error, steps, current) = self.refine(rhs, z, r, grad, best, col, stack);
         if let Some(failure) = self.backend.take_solve_failure() {
             return Err(failure);
         }
@@ -558,19 +559,17 @@ impl Factorization {
         out.x.copy_from_slice(&z[..n]);
         out.y.copy_from_slice(&z[n..]);
         // Residuals of the returned point, with the caller's c and b: r = rhs − K z holds
-        // [−c − Hx − Aᵀy; b − Ax] (refinement leaves it current unless it kept an earlier
-        // iterate).
-        if !r_current {
-            kkt::residual(&self.problem, z, rhs, r);
+        // [−c − Hx − Aᵀy; b − Ax]. Refinement leaves the residual of the returned z in r
+        // unless it had to step back to an earlier iterate.
+        if !current {
+            kkt::residual_and_gradient(&self.problem, z, rhs, r, grad);
         }
         out.dual_residual = inf_norm(&r[..n]);
         out.primal_residual = inf_norm(&r[n..]);
-        // objective = ½xᵀHx + cᵀx = ½xᵀ(Hx + c) + ½cᵀx, with Hx + c = −Aᵀy − r_x.
+        // objective = ½xᵀHx + cᵀx = ½xᵀ(Hx + c) + ½cᵀx, with Hx + c left in grad by the
+        // residual of the returned point.
         let x = &out.x;
-        let r_x = &mut best[..n];
-        r_x.iter_mut().zip(c).for_each(|(v, ci)| *v = *ci);
-        self.problem.h.mul_add(x, r_x);
-        out.objective = 0.5 * crate::problem::dot(x, r_x) + 0.5 * crate::problem::dot(c, x);
+        out.objective = 0.5 * crate::problem::dot(x, grad) + 0.5 * crate::problem::dot(c, x);
         out.backward_error = backward_error;
         out.refinement_steps = steps;
         out.inertia = self.backend.inertia();
@@ -623,12 +622,14 @@ impl Factorization {
     /// Iterative refinement on the original K: correct `z` until the backward error is at
     /// most the target, stops improving (by at least a factor 2), or the step limit is
     /// reached. Returns the final backward error, the corrections applied, and whether `r`
-    /// still holds the residual of the returned `z`.
+    /// and `grad` (`Hx + c`) still belong to the returned `z`.
+    #[allow(clippy::too_many_arguments)]
     fn refine(
         &self,
         rhs: &[f64],
         z: &mut [f64],
         r: &mut [f64],
+        grad: &mut [f64],
         best: &mut [f64],
         col: &mut Mat<f64>,
         stack: &mut MemStack,
@@ -636,10 +637,9 @@ impl Factorization {
         let opts = &self.plan.options;
         let dim = rhs.len();
         best.copy_from_slice(z);
-        kkt::residual(&self.problem, z, rhs, r);
+        kkt::residual_and_gradient(&self.problem, z, rhs, r, grad);
         let mut omega = normwise(r, self.norm_k, z, rhs);
         let mut steps = 0;
-        let mut r_current = true;
         while steps < opts.max_refinement_steps && omega > opts.refinement_target && omega.is_finite() {
             for i in 0..dim {
                 col[(i, 0)] = r[i];
@@ -648,14 +648,13 @@ impl Factorization {
             for i in 0..dim {
                 z[i] += col[(i, 0)];
             }
-            kkt::residual(&self.problem, z, rhs, r);
+            kkt::residual_and_gradient(&self.problem, z, rhs, r, grad);
             let next = normwise(r, self.norm_k, z, rhs);
             steps += 1;
             if next.is_nan() || next >= omega {
-                // No progress: keep the better iterate.
+                // No progress: keep the better iterate (r and grad belong to the rejected one).
                 z.copy_from_slice(best);
-                r_current = false;
-                break;
+                return (omega, steps, false);
             }
             best.copy_from_slice(z);
             let improved_enough = next <= 0.5 * omega;
@@ -664,12 +663,12 @@ impl Factorization {
                 break;
             }
         }
-        (omega, steps, r_current)
+        (omega, steps, true)
     }
 }
 
 /// Reusable scratch memory for [`Factorization::solve_into`]: the backend's solve scratch
-/// (faer `MemBuffer`) plus a few vectors of length `n + m`.
+/// (faer `MemBuffer`) plus a few vectors of length `n + m` and one of length `n`.
 pub struct Workspace {
     n: usize,
     m: usize,
@@ -680,6 +679,7 @@ pub struct Workspace {
     r: Vec<f64>,
     best: Vec<f64>,
     col: Mat<f64>,
+    grad: Vec<f64>,
 }
 
 impl std::fmt::Debug for Workspace {
@@ -705,12 +705,13 @@ impl Workspace {
             r: vec![0.0; dim],
             best: vec![0.0; dim],
             col: Mat::zeros(dim, 1),
+            grad: vec![0.0; n],
         }
     }
 
     /// Bytes held by this workspace.
     pub fn memory_usage(&self) -> usize {
-        self.buf_bytes + 5 * (self.n + self.m) * std::mem::size_of::<f64>()
+        self.buf_bytes + (5 * (self.n + self.m) + self.n) * std::mem::size_of::<f64>()
     }
 
     fn check(&self, n: usize, m: usize) -> Result<()> {

@@ -49,8 +49,28 @@ pub fn residual(problem: &Problem, z: &[f64], rhs: &[f64], out: &mut [f64]) {
     {
         let (ox, oy) = out.split_at_mut(n);
         problem.hessian().mul_add(x, ox);
-        problem.constraints().tr_mul_add(y, ox);
-        problem.constraints().mul_add(x, oy);
+        problem.constraints().mul_add_both(x, oy, y, ox);
+    }
+    for o in out.iter_mut() {
+        *o = -*o;
+    }
+}
+
+/// [`residual`] that also copies `H·x − rhs_x` (= `Hx + c` for `rhs = [−c; b]`, the
+/// gradient of the objective) into `grad` (length n) on the way: the same operations in
+/// the same order, so `out` is bitwise the result of [`residual`] and `grad` bitwise that
+/// of `grad = c; H.mul_add(x, grad)`.
+pub fn residual_and_gradient(problem: &Problem, z: &[f64], rhs: &[f64], out: &mut [f64], grad: &mut [f64]) {
+    let n = problem.n();
+    for (o, r) in out.iter_mut().zip(rhs) {
+        *o = -r;
+    }
+    let (x, y) = z.split_at(n);
+    {
+        let (ox, oy) = out.split_at_mut(n);
+        problem.hessian().mul_add(x, ox);
+        grad.copy_from_slice(ox);
+        problem.constraints().mul_add_both(x, oy, y, ox);
     }
     for o in out.iter_mut() {
         *o = -*o;

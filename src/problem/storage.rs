@@ -68,9 +68,9 @@ impl Matrix {
                 let cp = s.symbolic().col_ptr();
                 let ri = s.symbolic().row_idx();
                 let v = s.val();
-                for j in 0..s.ncols() {
-                    for k in cp[j]..cp[j + 1] {
-                        f(ri[k], j, v[k]);
+                for (j, w) in cp.windows(2).enumerate() {
+                    for (&i, &vk) in ri[w[0]..w[1]].iter().zip(&v[w[0]..w[1]]) {
+                        f(i, j, vk);
                     }
                 }
             }
@@ -105,9 +105,9 @@ impl Matrix {
                 let cp = s.symbolic().col_ptr();
                 let ri = s.symbolic().row_idx();
                 let v = s.val();
-                for (j, &xj) in x.iter().enumerate() {
-                    for k in cp[j]..cp[j + 1] {
-                        y[ri[k]] += v[k] * xj;
+                for (w, &xj) in cp.windows(2).zip(x) {
+                    for (&i, &vk) in ri[w[0]..w[1]].iter().zip(&v[w[0]..w[1]]) {
+                        y[i] += vk * xj;
                     }
                 }
             }
@@ -131,12 +131,60 @@ impl Matrix {
                 let cp = s.symbolic().col_ptr();
                 let ri = s.symbolic().row_idx();
                 let v = s.val();
-                for (j, yj) in y.iter_mut().enumerate() {
+                for (w, yj) in cp.windows(2).zip(y.iter_mut()) {
                     let mut acc = 0.0;
-                    for k in cp[j]..cp[j + 1] {
-                        acc += v[k] * x[ri[k]];
+                    for (&i, &vk) in ri[w[0]..w[1]].iter().zip(&v[w[0]..w[1]]) {
+                        acc += vk * x[i];
                     }
                     *yj += acc;
+                }
+            }
+        }
+    }
+
+    /// `y += M·x` and `yt += Mᵀ·xt` in one pass over the stored entries (the residual of K
+    /// needs both products with `A`). Every result is accumulated in the same order as by
+    /// [`mul_add`](Self::mul_add) and [`tr_mul_add`](Self::tr_mul_add), so the values are
+    /// bitwise the same; a sparse block is read once instead of twice.
+    ///
+    /// ```
+    /// use tangency::{ProblemBuilder, Triangle};
+    /// let p = ProblemBuilder::new()
+    ///     .hessian_triplets(3, &[(0, 0, 1.0), (1, 1, 1.0), (2, 2, 1.0)], Triangle::Lower)
+    ///     .constraints_triplets(2, 3, &[(0, 0, 0.3), (1, 0, -1.7), (0, 2, 2.9), (1, 1, 0.1)])
+    ///     .build()?;
+    /// let a = p.constraints();
+    /// let (x, xt) = ([0.7, -1.3, 0.2], [1.1, 0.4]);
+    /// let (mut y, mut yt) = (vec![0.5, 0.25], vec![1.0, 2.0, 3.0]);
+    /// a.mul_add_both(&x, &mut y, &xt, &mut yt);
+    /// let (mut y1, mut yt1) = (vec![0.5, 0.25], vec![1.0, 2.0, 3.0]);
+    /// a.mul_add(&x, &mut y1);
+    /// a.tr_mul_add(&xt, &mut yt1);
+    /// assert_eq!((y, yt), (y1, yt1)); // bitwise
+    /// # Ok::<(), tangency::Error>(())
+    /// ```
+    ///
+    /// # Panics
+    /// If the lengths do not match the block's shape.
+    pub fn mul_add_both(&self, x: &[f64], y: &mut [f64], xt: &[f64], yt: &mut [f64]) {
+        match self {
+            Matrix::Dense(_) => {
+                self.mul_add(x, y);
+                self.tr_mul_add(xt, yt);
+            }
+            Matrix::Sparse(s) => {
+                assert!(x.len() == self.ncols() && y.len() == self.nrows());
+                assert!(xt.len() == self.nrows() && yt.len() == self.ncols());
+                let cp = s.symbolic().col_ptr();
+                let ri = s.symbolic().row_idx();
+                let v = s.val();
+                for (w, (&xj, ytj)) in cp.windows(2).zip(x.iter().zip(yt.iter_mut())) {
+                    let mut acc = 0.0;
+                    for (&i, &vk) in ri[w[0]..w[1]].iter().zip(&v[w[0]..w[1]]) {
+                        acc += vk * xt[i];
+                        y[i] += vk * xj;
+                    }
+                    *ytj += acc;
                 }
             }
         }
