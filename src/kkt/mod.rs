@@ -82,8 +82,14 @@ pub fn norm_inf(problem: &Problem) -> f64 {
     norm_inf_with(problem, &mut vec![0.0f64; dim(problem)])
 }
 
-/// `‖K‖∞` using `rows` (length `n + m`) as scratch: no allocation.
+/// `‖K‖∞` using `rows` (length `n + m`) as scratch: no allocation. Computed once per pair of
+/// blocks `H`, `A` (clones of a problem and [`Problem::update_values`] with the same blocks
+/// share the value).
 pub fn norm_inf_with(problem: &Problem, rows: &mut [f64]) -> f64 {
+    *problem.norm_k.get_or_init(|| norm_inf_uncached(problem, rows))
+}
+
+fn norm_inf_uncached(problem: &Problem, rows: &mut [f64]) -> f64 {
     let n = problem.n();
     rows.iter_mut().for_each(|r| *r = 0.0);
     problem.hessian().for_each(|i, _, v| rows[i] += v.abs());

@@ -329,6 +329,7 @@ impl ProblemBuilder<HasHessian> {
         Ok(Problem {
             h: std::sync::Arc::new(h),
             a: std::sync::Arc::new(a),
+            norm_k: Default::default(),
             c,
             b,
         })

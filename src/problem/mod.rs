@@ -35,6 +35,9 @@ pub struct Problem {
     // dense block would cost as much as a residual evaluation.
     pub(crate) h: Arc<Matrix>,
     pub(crate) a: Arc<Matrix>,
+    // ‖K‖∞ of these blocks, computed on first use (see `kkt::norm_inf_with`); shared with the
+    // blocks, replaced with them.
+    pub(crate) norm_k: Arc<std::sync::OnceLock<f64>>,
     pub(crate) c: Vec<f64>,
     pub(crate) b: Vec<f64>,
 }
@@ -134,6 +137,7 @@ impl Problem {
         }
         self.h = Arc::clone(&other.h);
         self.a = Arc::clone(&other.a);
+        self.norm_k = Arc::clone(&other.norm_k);
         self.c.copy_from_slice(&other.c);
         self.b.copy_from_slice(&other.b);
         Ok(())
