@@ -92,7 +92,7 @@ pub enum MethodUsed {
     /// Preconditioned MINRES (iterative; inertia not observed), see [`crate::iterative`].
     Minres,
     /// Projected conjugate gradients with a constraint preconditioner (iterative; inertia
-    /// not observed), see [`crate::iterative::pcg`].
+    /// not observed), see [`crate::iterative::pcg()`].
     Pcg,
 }
 

@@ -112,7 +112,7 @@ pub struct Options {
     /// [`default_memory_budget`] (half of `MemAvailable`).
     pub memory_budget_bytes: Option<u64>,
     /// Tolerance of each MINRES solve when auto falls back to it (see
-    /// [`crate::iterative::minres`]). Default: [`crate::iterative::DEFAULT_TOLERANCE`].
+    /// [`crate::iterative::minres()`]). Default: [`crate::iterative::DEFAULT_TOLERANCE`].
     pub iterative_tol: f64,
     /// Iteration limit of each MINRES solve when auto falls back to it; reaching it gives
     /// [`Error::NotConverged`]. Default: [`crate::iterative::DEFAULT_MAX_ITER`].

@@ -31,7 +31,7 @@ pub struct SingularFindings {
 
 /// The interface every factorization backend implements.
 ///
-/// Contract: after [`factor`](KktBackend::factor) succeeded, [`solve_in_place`]
+/// Contract: after [`factor`](KktBackend::factor) succeeded, [`solve_in_place`](KktBackend::solve_in_place)
 /// (KktBackend::solve_in_place) overwrites each column `r` of `rhs` with an approximation
 /// of `K⁻¹r` for the *original* (unscaled) K of the problem last factored. Backends that
 /// scale or regularize internally undo it inside `solve_in_place`. Accuracy is checked and

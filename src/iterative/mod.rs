@@ -52,7 +52,7 @@ pub fn history_tail(history: &[f64], len: usize) -> &[f64] {
 /// Settings of [`solve`].
 #[derive(Clone, Debug)]
 pub struct IterativeOptions {
-    /// Relative tolerance: stop when `‖r‖_{P⁻¹} ≤ tol·‖rhs‖_{P⁻¹}` (see [`minres`]).
+    /// Relative tolerance: stop when `‖r‖_{P⁻¹} ≤ tol·‖rhs‖_{P⁻¹}` (see [`minres()`]).
     pub tol: f64,
     /// Iteration limit; reaching it gives [`Error::NotConverged`].
     pub max_iter: usize,

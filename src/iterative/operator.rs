@@ -10,7 +10,7 @@ use crate::problem::{Matrix, Problem};
 /// The blocks of a KKT system `K = [H Aᵀ; A 0]` as products.
 ///
 /// Every method **overwrites** its output (it does not accumulate). `Sync` because MINRES
-/// runs on faer's matrix-free `LinOp` trait, which requires it (see [`super::minres`]).
+/// runs on faer's matrix-free `LinOp` trait, which requires it (see [`super::minres()`]).
 pub trait KktOperator: Sync {
     /// Number of variables `n` (order of `H`, columns of `A`).
     fn n(&self) -> usize;

@@ -22,7 +22,7 @@
 //! **Stopping rule.** Stop at the first iterate with
 //! `‖[Hx + c + Aᵀy; Ax − b]‖₂ ≤ tol · ‖[c; b]‖₂`: the relative residual of the KKT system
 //! `K[x; y] = [−c; b]` in the 2-norm, relative to its right-hand side (MINRES measures the
-//! same residual in its preconditioner's norm, see [`super::minres`]).
+//! same residual in its preconditioner's norm, see [`super::minres()`]).
 //!
 //! **Curvature.** If a search direction has `pᵀHp ≤ 0` (relative to `‖p‖²` and the scale of
 //! `D`), the reduced Hessian `ZᵀHZ` is not positive definite and the problem has no unique
