@@ -9,17 +9,18 @@
 //!    faer GEMM measured here for the fraction-of-peak figure.
 //! 2. `shape_*`: n + m = 3000 with m/n ∈ {0.1, 0.5, 0.9}: dense LBLᵀ, Schur, null-space, auto.
 //!
-//! Every timing is analyze + factor + one certified solve (refinement included).
+//! Every timing is analyze + factor + one certified solve (refinement included), on a
+//! freshly built problem (no cached ‖K‖∞).
 
 use std::hint::black_box;
 use std::path::Path;
 use std::process::Command;
 use std::time::{Duration, Instant};
 
-use criterion::{criterion_group, criterion_main, Criterion};
+use criterion::{criterion_group, criterion_main, BatchSize, Criterion};
 use faer::{Mat, Par};
 use tangency::backend::schur;
-use tangency::{Method, Options, Plan, Problem, ProblemBuilder, Triangle};
+use tangency::{Matrix, Method, Options, Plan, Problem, ProblemBuilder, Triangle};
 
 /// Deterministic generator (xorshift), values in [−1, 1).
 struct Rng(u64);
@@ -71,6 +72,21 @@ fn convex(n: usize, m: usize, seed: u64) -> Problem {
         .expect("valid benchmark problem")
 }
 
+/// A new problem with the same data: nothing computed for `p` (such as ‖K‖∞, cached per
+/// problem) carries over, so every timed run is a cold first solve.
+fn fresh(p: &Problem) -> Problem {
+    let (Matrix::Dense(h), Matrix::Dense(a)) = (p.hessian(), p.constraints()) else {
+        panic!("the benchmark problems are dense")
+    };
+    ProblemBuilder::new()
+        .hessian_dense(h.as_ref(), Triangle::Full)
+        .linear(p.linear())
+        .constraints_dense(a.as_ref())
+        .rhs(p.rhs())
+        .build()
+        .expect("valid benchmark problem")
+}
+
 fn run(p: &Problem, method: Method) -> tangency::Solution {
     let opts = Options {
         method,
@@ -81,26 +97,30 @@ fn run(p: &Problem, method: Method) -> tangency::Solution {
     f.solve().expect("solve")
 }
 
-fn gemm_rate() -> f64 {
-    let k = 2000;
-    let a = Mat::from_fn(k, k, |i, j| ((i * 7 + j * 3) % 11) as f64);
-    let b = a.clone();
-    let mut c = Mat::<f64>::zeros(k, k);
-    let mut best = f64::INFINITY;
-    for _ in 0..3 {
-        let t = Instant::now();
-        faer::linalg::matmul::matmul(
-            c.as_mut(),
-            faer::Accum::Replace,
-            a.as_ref(),
-            b.as_ref(),
-            1.0,
-            Par::rayon(0),
-        );
-        best = best.min(t.elapsed().as_secs_f64());
+/// Rate (flop/s) of a faer GEMM of order 2000 in `f64` and in `f32`.
+fn gemm_rates() -> (f64, f64) {
+    fn rate<T: faer::traits::RealField + Copy>(one: T, from: impl Fn(usize) -> T) -> f64 {
+        let k = 2000;
+        let a = Mat::from_fn(k, k, |i, j| from((i * 7 + j * 3) % 11));
+        let b = a.clone();
+        let mut c = Mat::<T>::zeros(k, k);
+        let mut best = f64::INFINITY;
+        for _ in 0..3 {
+            let t = Instant::now();
+            faer::linalg::matmul::matmul(
+                c.as_mut(),
+                faer::Accum::Replace,
+                a.as_ref(),
+                b.as_ref(),
+                one,
+                Par::rayon(0),
+            );
+            best = best.min(t.elapsed().as_secs_f64());
+        }
+        black_box(&c);
+        2.0 * (k as f64).powi(3) / best
     }
-    black_box(&c);
-    2.0 * (k as f64).powi(3) / best
+    (rate(1.0f64, |v| v as f64), rate(1.0f32, |v| v as f32))
 }
 
 fn read_array(path: &Path) -> Option<Vec<f64>> {
@@ -153,7 +173,9 @@ fn median_of(c: &mut Criterion, group: &str, name: &str, p: &Problem, method: Me
     g.sample_size(10)
         .warm_up_time(Duration::from_millis(500))
         .measurement_time(Duration::from_secs(8));
-    g.bench_function(name, |bch| bch.iter(|| black_box(run(p, method))));
+    g.bench_function(name, |bch| {
+        bch.iter_batched_ref(|| fresh(p), |q| black_box(run(q, method)), BatchSize::PerIteration)
+    });
     g.finish();
 }
 
@@ -163,11 +185,14 @@ fn convex_3000x1000(c: &mut Criterion) {
     let s = run(&p, Method::Schur);
     assert_eq!(s.method, tangency::MethodUsed::Schur);
     let d = run(&p, Method::Dense);
-    let rate = gemm_rate();
+    let (rate64, rate32) = gemm_rates();
+    let mixed = s.notes.iter().any(|n| n.contains("single precision"));
+    let rate = if mixed { rate32 } else { rate64 };
     let fl = schur::flops(n, m);
     // Factor-only time of the Schur path, for the fraction of the GEMM rate.
     let mut best_factor = f64::INFINITY;
     for _ in 0..3 {
+        let p = fresh(&p);
         let plan = Plan::analyze(
             &p,
             &Options {
@@ -186,11 +211,13 @@ fn convex_3000x1000(c: &mut Criterion) {
         s.backward_error, s.refinement_steps, d.backward_error
     );
     eprintln!(
-        "[convex_3000x1000] Schur flops {:.3e}; factor (incl. probe) best {:.3} s = {:.1} GFLOP/s; faer GEMM 2000³ {:.1} GFLOP/s; fraction {:.2}",
+        "[convex_3000x1000] Schur flops {:.3e} ({} factors); factor (incl. probe) best {:.3} s = {:.1} GFLOP/s; faer GEMM 2000³ {:.1} GFLOP/s (f64) / {:.1} (f32); fraction of the GEMM rate of that precision {:.2}",
         fl,
+        if mixed { "f32" } else { "f64" },
         best_factor,
         fl / best_factor / 1e9,
-        rate / 1e9,
+        rate64 / 1e9,
+        rate32 / 1e9,
         fl / best_factor / rate
     );
     match lapack_reference(&p) {

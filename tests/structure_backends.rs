@@ -4,6 +4,7 @@
 use nalgebra::{DMatrix, DVector};
 use proptest::prelude::*;
 use tangency::backend::auto;
+use tangency::backend::schur::{SchurParams, SchurPrecision};
 use tangency::{Error, Method, MethodUsed, Options, Plan, Problem, ProblemBuilder, Triangle, Verdict};
 
 const METHODS: [Method; 4] = [Method::Dense, Method::Schur, Method::NullSpace, Method::Auto];
@@ -497,8 +498,13 @@ proptest! {
         prop_assume!(k_condition(&p) > 1e-8);
         let dense = solve(&p, Method::Dense);
         let Ok(dense) = dense else { return Err(TestCaseError::fail(format!("dense failed: {dense:?}"))); };
-        for method in [Method::Schur, Method::NullSpace, Method::Auto] {
-            let s = solve(&p, method).map_err(|e| TestCaseError::fail(format!("{method:?}: {e}")))?;
+        let mixed = Options { method: Method::Schur, schur: SchurParams { precision: SchurPrecision::Mixed, ..Default::default() }, ..Default::default() };
+        for (method, opts) in [Method::Schur, Method::NullSpace, Method::Auto, Method::Schur]
+            .into_iter()
+            .zip([None, None, None, Some(mixed)])
+        {
+            let opts = opts.unwrap_or(Options { method, ..Default::default() });
+            let s = tangency::solve(&p, &opts).map_err(|e| TestCaseError::fail(format!("{method:?}: {e}")))?;
             prop_assert_eq!(s.verdict, dense.verdict, "{:?}", method);
             prop_assert_eq!(s.inertia, dense.inertia, "{:?}", method);
             for (g, w) in s.x.iter().zip(&xs) { prop_assert!((g - w).abs() < 1e-7 * (1.0 + w.abs()), "{:?} x", method); }
@@ -512,4 +518,102 @@ proptest! {
         let pos = kn.symmetric_eigenvalues().iter().filter(|v| **v > 0.0).count();
         prop_assert_eq!(dense.verdict == Some(Verdict::Minimizer), pos == p.n());
     }
+}
+
+// ---------- mixed-precision Schur factors ----------
+
+fn mixed_options() -> Options {
+    Options {
+        method: Method::Schur,
+        schur: SchurParams {
+            precision: SchurPrecision::Mixed,
+            ..Default::default()
+        },
+        ..Default::default()
+    }
+}
+
+/// H = V diag(d) Vᵀ with V a Householder reflection (orthogonal), A random, and c, b made
+/// from chosen x*, y*: the exact answer is known by construction.
+fn constructed(d: &[f64], m: usize, seed: u64) -> (Problem, DVector<f64>, DVector<f64>) {
+    let n = d.len();
+    let mut state = seed | 1;
+    let mut rnd = move || {
+        state ^= state << 13;
+        state ^= state >> 7;
+        state ^= state << 17;
+        (state % 2001) as f64 / 1000.0 - 1.0
+    };
+    let v = DVector::from_fn(n, |_, _| rnd());
+    let q = DMatrix::identity(n, n) - &v * v.transpose() * (2.0 / v.dot(&v));
+    let h = &q * DMatrix::from_diagonal(&DVector::from_column_slice(d)) * q.transpose();
+    let h = (&h + h.transpose()) * 0.5;
+    let a = DMatrix::from_fn(m, n, |_, _| rnd());
+    let xs = DVector::from_fn(n, |_, _| rnd());
+    let ys = DVector::from_fn(m, |_, _| rnd());
+    let c = -(&h * &xs) - a.transpose() * &ys;
+    let b = &a * &xs;
+    (
+        problem(n, &row_major(&h), c.as_slice(), m, &row_major(&a), b.as_slice()),
+        xs,
+        ys,
+    )
+}
+
+#[test]
+fn mixed_precision_schur_refines_to_double_accuracy() {
+    // Well conditioned (κ(H) = 100): single-precision factors, full accuracy after refinement.
+    let d: Vec<f64> = (0..240).map(|i| 1.0 + 99.0 * i as f64 / 239.0).collect();
+    let (p, xs, ys) = constructed(&d, 80, 11);
+    let s = tangency::solve(&p, &mixed_options()).unwrap();
+    assert_eq!(s.method, MethodUsed::Schur);
+    assert!(s.notes.iter().any(|n| n.contains("single precision")), "{:?}", s.notes);
+    assert!(s.backward_error <= 4.0 * f64::EPSILON, "{}", s.backward_error);
+    assert!(s.refinement_steps >= 1, "single-precision factors need refinement");
+    assert_close(&s.x, xs.as_slice(), 1e-12, "x");
+    assert_close(&s.y, ys.as_slice(), 1e-12, "y");
+    assert_eq!(s.verdict, Some(Verdict::Minimizer));
+    // The same answer as the double-precision factors.
+    let dbl = solve(&p, Method::Schur).unwrap();
+    assert!(
+        !dbl.notes.iter().any(|n| n.contains("single precision")),
+        "n < MIXED_MIN_DIM: double by default"
+    );
+    assert_close(&s.x, &dbl.x, 1e-12, "x vs double");
+}
+
+#[test]
+fn mixed_precision_schur_hands_ill_conditioned_h_to_double_precision() {
+    // κ(H) = 1e10 ≫ 1/ε_f32: the single-precision factors cannot be refined; double can.
+    let d: Vec<f64> = (0..60).map(|i| 10f64.powf(-10.0 * i as f64 / 59.0)).collect();
+    let (p, xs, _) = constructed(&d, 20, 5);
+    let s = tangency::solve(&p, &mixed_options()).unwrap();
+    assert!(
+        s.notes
+            .iter()
+            .any(|n| n.contains("single-precision Schur factors refused")),
+        "{:?}",
+        s.notes
+    );
+    assert!(s.backward_error < 1e-14, "{}", s.backward_error);
+    // Forward error bounded by κ·ε (κ(K) is about κ(H) here).
+    assert_close(&s.x, xs.as_slice(), 1e-4, "x");
+}
+
+#[test]
+fn mixed_precision_schur_refuses_entries_outside_the_single_range() {
+    // H ~ 1e50 overflows f32: the single-precision path must refuse, never return NaN.
+    let d: Vec<f64> = (0..30).map(|i| 1e50 * (1.0 + i as f64)).collect();
+    let (p, xs, _) = constructed(&d, 10, 9);
+    let s = tangency::solve(&p, &mixed_options()).unwrap();
+    assert!(
+        s.notes
+            .iter()
+            .any(|n| n.contains("single-precision Schur factors refused")),
+        "{:?}",
+        s.notes
+    );
+    assert!(s.x.iter().all(|v| v.is_finite()));
+    assert!(s.backward_error < 1e-14, "{}", s.backward_error);
+    assert_close(&s.x, xs.as_slice(), 1e-8, "x");
 }

@@ -10,6 +10,14 @@
 //! Cost: `n³/3` (Cholesky of H) + `n²m` (triangular solve) + `nm²` (lower half of `WᵀW`)
 //! + `m³/3` (Cholesky of S) flops, all in level-3 kernels (see [`flops`]).
 //!
+//! **Precision.** From `n ≥` [`MIXED_MIN_DIM`] the factors are computed in `f32` by default
+//! ([`SchurPrecision`]): the kernels run at twice the `f64` rate, and the iterative
+//! refinement on the original K (in `f64`, as for every backend) restores full accuracy in
+//! two or three corrections when `κ(K)·ε_f32` is small. The probe below checks that it
+//! does; if not, the factors are recomputed in `f64` (a note says so) before any other
+//! fallback. The inertia certificate is the same: both `f32` Cholesky factorizations
+//! succeeded with pivots above the `f32` threshold and the refined solves converge.
+//!
 //! **Fallback.** If a Cholesky factorization fails (a pivot `≤ 0`, or `L_ii² ≤ factor ·
 //! n · ε · max_i H_ii`, i.e. `H` not numerically positive definite; likewise for `S`), or
 //! if a probe solve on the original K (a fixed right-hand side `K·z₀`, refined up to three
@@ -31,17 +39,49 @@ use crate::problem::{Matrix, Problem};
 use crate::solution::{Inertia, MethodUsed};
 use crate::solver::Options;
 
+/// Precision of the Schur factors.
+#[derive(Copy, Clone, Debug, PartialEq, Eq)]
+pub enum SchurPrecision {
+    /// Factors in `f64`.
+    Double,
+    /// Factors in `f32` (twice the kernel rate with half the memory traffic), with the
+    /// caller's iterative refinement in `f64` on the original K restoring full accuracy:
+    /// the mixed-precision scheme of LAPACK's `DSPOSV` (Buttari, Dongarra, Langou, Langou,
+    /// Luszczek & Kurzak 2007, "Mixed precision iterative refinement techniques for the
+    /// solution of dense linear systems", Int. J. High Perform. Comput. Appl. 21). If the
+    /// `f32` factorization fails or the probe solve does not refine to
+    /// [`SchurParams::probe_backward_error`] (K too ill-conditioned for `f32` factors, or
+    /// entries outside the `f32` range), the backend refactors in `f64` before any other
+    /// fallback, and says so in its notes.
+    Mixed,
+    /// [`Mixed`](SchurPrecision::Mixed) when `n ≥ MIXED_MIN_DIM`, else
+    /// [`Double`](SchurPrecision::Double). The default.
+    Auto,
+}
+
+/// With single-precision factors the probe accepts once one refinement step reduced the
+/// backward error by at least this factor (refinement then converges linearly at that rate
+/// or better): `1e-3`.
+pub const PROBE_CONTRACTION: f64 = 1e-3;
+
+/// Below this `n`, [`SchurPrecision::Auto`] factors in `f64`: the extra refinement steps
+/// of mixed precision cost more than the faster kernels save (measured crossover on the
+/// `structure` benchmark's convex problems: about n = 1000).
+pub const MIXED_MIN_DIM: usize = 1000;
+
 /// Settings of the Schur-complement backend.
 #[derive(Copy, Clone, Debug)]
 pub struct SchurParams {
-    /// A Cholesky pivot with `L_ii² ≤ factor · n · ε · max_i M_ii` (M = H or S) counts as a
-    /// failure. Default: 10.
+    /// A Cholesky pivot with `L_ii² ≤ factor · n · ε · max_i M_ii` (M = H or S, ε of the
+    /// factor precision) counts as a failure. Default: 10.
     pub pivot_factor: f64,
     /// Fall back when the probe solve's backward error after refinement exceeds this.
     /// Default: `1e-12` (a healthy solve reaches about `1e-16`).
     pub probe_backward_error: f64,
     /// Parallelism of the dense kernels. Default: all threads.
     pub par: Par,
+    /// Precision of the factors. Default: [`SchurPrecision::Auto`].
+    pub precision: SchurPrecision,
 }
 
 impl Default for SchurParams {
@@ -50,6 +90,7 @@ impl Default for SchurParams {
             pivot_factor: 10.0,
             probe_backward_error: 1e-12,
             par: Par::rayon(0),
+            precision: SchurPrecision::Auto,
         }
     }
 }
@@ -64,6 +105,191 @@ pub fn flops(n: usize, m: usize) -> f64 {
     n * n * n / 3.0 + n * n * m + n * m * m + m * m * m / 3.0
 }
 
+/// A floating-point type the factors can be stored in.
+trait Real: faer::traits::RealField + Copy + Into<f64> {
+    const EPS: f64;
+    fn of(x: f64) -> Self;
+}
+impl Real for f64 {
+    const EPS: f64 = f64::EPSILON;
+    fn of(x: f64) -> Self {
+        x
+    }
+}
+impl Real for f32 {
+    const EPS: f64 = f32::EPSILON as f64;
+    fn of(x: f64) -> Self {
+        x as f32
+    }
+}
+
+/// `L` (Cholesky of H), `W = L⁻¹Aᵀ` and `L_S` (Cholesky of `S = WᵀW`) in one precision.
+#[derive(Debug)]
+struct Factors<T> {
+    l: Mat<T>,
+    w: Mat<T>,
+    ls: Mat<T>,
+}
+
+impl<T: Real> Factors<T> {
+    fn empty() -> Self {
+        Factors {
+            l: Mat::zeros(0, 0),
+            w: Mat::zeros(0, 0),
+            ls: Mat::zeros(0, 0),
+        }
+    }
+
+    fn factor(&mut self, problem: &Problem, params: &SchurParams) -> std::result::Result<(), String> {
+        let (n, m) = (problem.n(), problem.m());
+        let par = params.par;
+        if self.l.nrows() != n || self.w.ncols() != m || self.ls.nrows() != m {
+            self.l = Mat::zeros(n, n);
+            self.w = Mat::zeros(n, m);
+            self.ls = Mat::zeros(m, m);
+        }
+        match problem.hessian() {
+            // Dense storage: copy the lower triangle column by column (the upper one is never read).
+            Matrix::Dense(h) => {
+                for j in 0..n {
+                    let (dst, src) = (&mut self.l.col_as_slice_mut(j)[j..], &h.col_as_slice(j)[j..]);
+                    dst.iter_mut().zip(src).for_each(|(d, v)| *d = T::of(*v));
+                }
+            }
+            Matrix::Sparse(_) => {
+                self.l.fill(T::of(0.0));
+                problem.hessian().for_each(|i, j, v| {
+                    if i >= j {
+                        self.l[(i, j)] = T::of(v)
+                    }
+                });
+            }
+        }
+        cholesky(self.l.as_mut(), params, "H")?;
+        match problem.constraints() {
+            Matrix::Dense(a) => {
+                // W = Aᵀ by tiles, so that both sides are read and written in cache-sized runs.
+                const TILE: usize = 64;
+                for c0 in (0..n).step_by(TILE) {
+                    for r0 in (0..m).step_by(TILE) {
+                        for c in c0..(c0 + TILE).min(n) {
+                            let src = &a.col_as_slice(c)[r0..(r0 + TILE).min(m)];
+                            for (k, v) in src.iter().enumerate() {
+                                self.w[(c, r0 + k)] = T::of(*v);
+                            }
+                        }
+                    }
+                }
+            }
+            Matrix::Sparse(_) => {
+                self.w.fill(T::of(0.0));
+                problem.constraints().for_each(|i, j, v| self.w[(j, i)] = T::of(v));
+            }
+        }
+        triangular_solve::solve_lower_triangular_in_place(self.l.as_ref(), self.w.as_mut(), par);
+        tri::matmul(
+            self.ls.as_mut(),
+            BlockStructure::TriangularLower,
+            Accum::Replace,
+            self.w.transpose(),
+            BlockStructure::Rectangular,
+            self.w.as_ref(),
+            BlockStructure::Rectangular,
+            T::of(1.0),
+            par,
+        );
+        cholesky(self.ls.as_mut(), params, "the Schur complement A H⁻¹ Aᵀ")
+            .map_err(|e| format!("{e}: A is (numerically) rank-deficient"))
+    }
+
+    /// `[f; g] ← K⁻¹[f; g]` with these factors (in their precision).
+    fn solve(&self, mut rhs: MatMut<'_, f64>) {
+        let (n, m) = (self.l.nrows(), self.ls.nrows());
+        let k = rhs.ncols();
+        let mut top = Mat::<T>::from_fn(n, k, |i, j| T::of(rhs[(i, j)]));
+        // u = L⁻¹ f
+        triangular_solve::solve_lower_triangular_in_place(self.l.as_ref(), top.as_mut(), Par::Seq);
+        let mut t = Mat::<T>::zeros(m, k);
+        if m > 0 {
+            // y = S⁻¹ (Wᵀu − g)
+            for j in 0..k {
+                for i in 0..m {
+                    t[(i, j)] = T::of(-rhs[(n + i, j)]);
+                }
+            }
+            faer::linalg::matmul::matmul(
+                t.as_mut(),
+                Accum::Add,
+                self.w.transpose(),
+                top.as_ref(),
+                T::of(1.0),
+                Par::Seq,
+            );
+            triangular_solve::solve_lower_triangular_in_place(self.ls.as_ref(), t.as_mut(), Par::Seq);
+            triangular_solve::solve_upper_triangular_in_place(self.ls.transpose(), t.as_mut(), Par::Seq);
+            // u − W y
+            faer::linalg::matmul::matmul(
+                top.as_mut(),
+                Accum::Add,
+                self.w.as_ref(),
+                t.as_ref(),
+                T::of(-1.0),
+                Par::Seq,
+            );
+        }
+        triangular_solve::solve_upper_triangular_in_place(self.l.transpose(), top.as_mut(), Par::Seq);
+        for j in 0..k {
+            for i in 0..n {
+                rhs[(i, j)] = top[(i, j)].into();
+            }
+            for i in 0..m {
+                rhs[(n + i, j)] = t[(i, j)].into();
+            }
+        }
+    }
+}
+
+/// Cholesky in place (lower), with the pivot check; `Err(reason)` on failure.
+fn cholesky<T: Real>(mut a: MatMut<'_, T>, params: &SchurParams, what: &str) -> std::result::Result<(), String> {
+    let dim = a.nrows();
+    if dim == 0 {
+        return Ok(());
+    }
+    let diag = |a: &MatMut<'_, T>, i: usize| -> f64 { a[(i, i)].into() };
+    let dmax = (0..dim).fold(0.0f64, |acc, i| acc.max(diag(&a, i)));
+    if let Some(i) = (0..dim).find(|&i| diag(&a, i).partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater)) {
+        return Err(format!(
+            "{what} has a non-positive diagonal entry at {i} (value {:e})",
+            diag(&a, i)
+        ));
+    }
+    let mut buf = MemBuffer::new(llt::cholesky_in_place_scratch::<T>(dim, params.par, Default::default()));
+    llt::cholesky_in_place(
+        a.as_mut(),
+        LltRegularization::default(),
+        params.par,
+        MemStack::new(&mut buf),
+        Default::default(),
+    )
+    .map_err(|e| match e {
+        llt::LltError::NonPositivePivot { index } => {
+            format!("{what} is not positive definite (Cholesky pivot {index} is not positive)")
+        }
+    })?;
+    let tol = params.pivot_factor * dim as f64 * T::EPS * dmax;
+    if let Some(i) = (0..dim).find(|&i| {
+        let d = diag(&a, i);
+        (d * d).partial_cmp(&tol) != Some(std::cmp::Ordering::Greater)
+    }) {
+        let d = diag(&a, i);
+        return Err(format!(
+            "{what} is numerically singular (Cholesky pivot {i}: {:.2e} ≤ {tol:.1e})",
+            d * d
+        ));
+    }
+    Ok(())
+}
+
 /// The Schur-complement factorization of one KKT matrix (or its fallback).
 #[derive(Debug)]
 pub struct Schur {
@@ -71,9 +297,10 @@ pub struct Schur {
     options: Options,
     n: usize,
     m: usize,
-    l: Mat<f64>,
-    w: Mat<f64>,
-    ls: Mat<f64>,
+    double: Factors<f64>,
+    single: Factors<f32>,
+    // Whether the factors in use are the `f32` ones.
+    mixed: bool,
     fallback: Option<Box<dyn KktBackend>>,
     notes: Vec<String>,
 }
@@ -87,9 +314,9 @@ impl Schur {
             options: *options,
             n,
             m,
-            l: Mat::zeros(n, n),
-            w: Mat::zeros(n, m),
-            ls: Mat::zeros(m, m),
+            double: Factors::empty(),
+            single: Factors::empty(),
+            mixed: false,
             fallback: None,
             notes: Vec::new(),
         }
@@ -100,105 +327,45 @@ impl Schur {
         self.fallback.is_some()
     }
 
-    /// Cholesky in place (lower), with the pivot check; `Err(reason)` on failure.
-    fn cholesky(&self, mut a: MatMut<'_, f64>, what: &str) -> std::result::Result<(), String> {
-        let dim = a.nrows();
-        if dim == 0 {
-            return Ok(());
-        }
-        let dmax = (0..dim).fold(0.0f64, |acc, i| acc.max(a[(i, i)]));
-        if let Some(i) = (0..dim).find(|&i| a[(i, i)].partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater)) {
-            return Err(format!(
-                "{what} has a non-positive diagonal entry at {i} (value {:e})",
-                a[(i, i)]
-            ));
-        }
-        let mut buf = MemBuffer::new(llt::cholesky_in_place_scratch::<f64>(
-            dim,
-            self.params.par,
-            Default::default(),
-        ));
-        llt::cholesky_in_place(
-            a.as_mut(),
-            LltRegularization::default(),
-            self.params.par,
-            MemStack::new(&mut buf),
-            Default::default(),
-        )
-        .map_err(|e| match e {
-            llt::LltError::NonPositivePivot { index } => {
-                format!("{what} is not positive definite (Cholesky pivot {index} is not positive)")
-            }
-        })?;
-        let tol = self.params.pivot_factor * dim as f64 * f64::EPSILON * dmax;
-        if let Some(i) =
-            (0..dim).find(|&i| (a[(i, i)] * a[(i, i)]).partial_cmp(&tol) != Some(std::cmp::Ordering::Greater))
-        {
-            return Err(format!(
-                "{what} is numerically singular (Cholesky pivot {i}: {:.2e} ≤ {tol:.1e})",
-                a[(i, i)] * a[(i, i)]
-            ));
-        }
-        Ok(())
+    /// Whether the factors in use are single precision (see [`SchurPrecision::Mixed`]).
+    pub fn mixed_precision(&self) -> bool {
+        self.fallback.is_none() && self.mixed
     }
 
     fn try_factor(&mut self, problem: &Problem) -> std::result::Result<(), String> {
         let (n, m) = (self.n, self.m);
-        let par = self.params.par;
         if m > n {
             return Err(format!("m = {m} > n = {n}: A H⁻¹ Aᵀ is singular"));
         }
-        if self.l.nrows() != n || self.w.ncols() != m || self.ls.nrows() != m {
-            self.l = Mat::zeros(n, n);
-            self.w = Mat::zeros(n, m);
-            self.ls = Mat::zeros(m, m);
-        }
-        match problem.hessian() {
-            // Dense storage: copy the lower triangle column by column (the upper one is never read).
-            Matrix::Dense(h) => {
-                for j in 0..n {
-                    self.l
-                        .col_mut(j)
-                        .subrows_mut(j, n - j)
-                        .copy_from(h.col(j).subrows(j, n - j));
+        let want_mixed = match self.params.precision {
+            SchurPrecision::Double => false,
+            SchurPrecision::Mixed => true,
+            SchurPrecision::Auto => n >= MIXED_MIN_DIM,
+        };
+        if want_mixed {
+            self.mixed = true;
+            let res = self
+                .single
+                .factor(problem, &self.params)
+                .and_then(|()| self.probe(problem));
+            match res {
+                Ok(()) => {
+                    self.notes.push(
+                        "Schur factors in single precision; refinement in double precision on the original K"
+                            .to_string(),
+                    );
+                    return Ok(());
+                }
+                Err(reason) => {
+                    self.single = Factors::empty();
+                    self.notes.push(format!(
+                        "single-precision Schur factors refused ({reason}); refactored in double precision"
+                    ));
                 }
             }
-            Matrix::Sparse(_) => {
-                self.l.fill(0.0);
-                problem.hessian().for_each(|i, j, v| {
-                    if i >= j {
-                        self.l[(i, j)] = v
-                    }
-                });
-            }
         }
-        let mut l = std::mem::replace(&mut self.l, Mat::zeros(0, 0));
-        let res = self.cholesky(l.as_mut(), "H");
-        self.l = l;
-        res?;
-        match problem.constraints() {
-            Matrix::Dense(a) => self.w.copy_from(a.transpose()),
-            Matrix::Sparse(_) => {
-                self.w.fill(0.0);
-                problem.constraints().for_each(|i, j, v| self.w[(j, i)] = v);
-            }
-        }
-        triangular_solve::solve_lower_triangular_in_place(self.l.as_ref(), self.w.as_mut(), par);
-        tri::matmul(
-            self.ls.as_mut(),
-            BlockStructure::TriangularLower,
-            Accum::Replace,
-            self.w.transpose(),
-            BlockStructure::Rectangular,
-            self.w.as_ref(),
-            BlockStructure::Rectangular,
-            1.0,
-            par,
-        );
-        let mut ls = std::mem::replace(&mut self.ls, Mat::zeros(0, 0));
-        let res = self.cholesky(ls.as_mut(), "the Schur complement A H⁻¹ Aᵀ");
-        self.ls = ls;
-        res.map_err(|e| format!("{e}: A is (numerically) rank-deficient"))?;
+        self.mixed = false;
+        self.double.factor(problem, &self.params)?;
         self.probe(problem)
     }
 
@@ -218,7 +385,8 @@ impl Schur {
         let mut z = vec![0.0; dim];
         let mut r = rhs.clone();
         let mut omega = f64::INFINITY;
-        for _ in 0..4 {
+        for step in 0..4 {
+            let previous = omega;
             let mut col = Mat::from_fn(dim, 1, |i, _| r[i]);
             self.solve_own(col.as_mut());
             for i in 0..dim {
@@ -226,41 +394,33 @@ impl Schur {
             }
             kkt::residual(problem, &z, &rhs, &mut r);
             omega = crate::solver::normwise(&r, norm_k, &z, &rhs);
-            // Accept as soon as the probe meets the bar: the solves proper refine further.
-            if omega <= self.params.probe_backward_error {
+            // Accept as soon as the probe meets the bar, or (single-precision factors) once a
+            // refinement step has contracted the backward error by 10³ or more: refinement
+            // converges, and the solves proper refine to full accuracy.
+            let contracted = self.mixed && step > 0 && omega <= PROBE_CONTRACTION * previous;
+            if omega <= self.params.probe_backward_error || contracted {
+                omega = omega.min(self.params.probe_backward_error);
                 break;
             }
         }
-        if omega > self.params.probe_backward_error {
+        // Anything but a finite ω within the bar is refused: a NaN (overflow in the factors) too.
+        if omega.is_nan() || omega > self.params.probe_backward_error {
             return Err(format!(
                 "a probe solve on K kept a backward error of {omega:.1e} after refinement \
-                 (> {:.0e}): H or A H⁻¹ Aᵀ is too ill-conditioned for this method",
-                self.params.probe_backward_error
+                 (> {:.0e}): H or A H⁻¹ Aᵀ is too ill-conditioned for this method{}",
+                self.params.probe_backward_error,
+                if self.mixed { " in single precision" } else { "" }
             ));
         }
         Ok(())
     }
 
-    fn solve_own(&self, mut rhs: MatMut<'_, f64>) {
-        let (n, m) = (self.n, self.m);
-        let (mut top, mut bot) = rhs.as_mut().split_at_row_mut(n);
-        // u = L⁻¹ f
-        triangular_solve::solve_lower_triangular_in_place(self.l.as_ref(), top.as_mut(), Par::Seq);
-        if m > 0 {
-            // y = S⁻¹ (Wᵀu − g)
-            let mut t = self.w.transpose() * top.as_ref();
-            for j in 0..t.ncols() {
-                for i in 0..m {
-                    t[(i, j)] -= bot[(i, j)];
-                }
-            }
-            triangular_solve::solve_lower_triangular_in_place(self.ls.as_ref(), t.as_mut(), Par::Seq);
-            triangular_solve::solve_upper_triangular_in_place(self.ls.transpose(), t.as_mut(), Par::Seq);
-            // u − W y
-            faer::linalg::matmul::matmul(top.as_mut(), Accum::Add, self.w.as_ref(), t.as_ref(), -1.0, Par::Seq);
-            bot.copy_from(&t);
+    fn solve_own(&self, rhs: MatMut<'_, f64>) {
+        if self.mixed {
+            self.single.solve(rhs)
+        } else {
+            self.double.solve(rhs)
         }
-        triangular_solve::solve_upper_triangular_in_place(self.l.transpose(), top.as_mut(), Par::Seq);
     }
 }
 
@@ -288,9 +448,8 @@ impl KktBackend for Schur {
             ));
             self.notes.extend(fb.notes().iter().cloned());
             // Release the Schur storage while the fallback is in use.
-            self.l = Mat::zeros(0, 0);
-            self.w = Mat::zeros(0, 0);
-            self.ls = Mat::zeros(0, 0);
+            self.double = Factors::empty();
+            self.single = Factors::empty();
             self.fallback = Some(fb);
         }
         Ok(())
