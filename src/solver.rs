@@ -507,6 +507,9 @@ impl Factorization {
         check_vector(Block::C, c, n)?;
         check_vector(Block::B, b, m)?;
         ws.check(n, m)?;
+        // A refactorization may have changed the backend (a fallback, the rank analysis) and
+        // with it the scratch a solve needs: grow the buffer then (only then does this allocate).
+        ws.reserve(self.backend.solve_scratch(1));
         let singular = self.backend.inertia().is_some_and(|i| i.zero > 0);
         let (verdict, findings) = if singular {
             match self.backend.singular_findings(&self.problem, c, b) {
@@ -712,6 +715,13 @@ impl Workspace {
     /// Bytes held by this workspace.
     pub fn memory_usage(&self) -> usize {
         self.buf_bytes + (5 * (self.n + self.m) + self.n) * std::mem::size_of::<f64>()
+    }
+
+    fn reserve(&mut self, req: faer::dyn_stack::StackReq) {
+        if req.size_bytes() > self.buf_bytes {
+            self.buf = MemBuffer::new(req);
+            self.buf_bytes = req.size_bytes();
+        }
     }
 
     fn check(&self, n: usize, m: usize) -> Result<()> {

@@ -434,6 +434,36 @@ fn refactor_after_a_fallback_starts_from_the_plan() {
     assert!(f.solve().unwrap().backward_error < 1e-15);
 }
 
+#[test]
+fn a_workspace_survives_a_refactor_that_changes_the_backend() {
+    // Planned as Schur, first factored with an indefinite H (falls back to dense LBLᵀ), then
+    // refactored with H positive definite: Schur itself, whose solve needs scratch the
+    // workspace made after the first factorization does not have.
+    let a = [1., 1., 1., 1., 1., 0., 0., 1., -2., -2.];
+    let mut h = spd(5, 2);
+    h[(0, 0)] = -40.0;
+    let indefinite = problem(5, &row_major(&h), &[1., 0., 0., 0., 0.], 2, &a, &[5., -3.]);
+    let convex = problem(5, &row_major(&spd(5, 1)), &[1., 0., 0., 0., 0.], 2, &a, &[5., -3.]);
+    let plan = Plan::analyze(
+        &indefinite,
+        &Options {
+            method: Method::Schur,
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    let mut f = plan.factor(&indefinite).unwrap();
+    assert_ne!(f.backend().method(), MethodUsed::Schur);
+    let mut ws = f.workspace();
+    f.refactor(&convex).unwrap();
+    assert_eq!(f.backend().method(), MethodUsed::Schur);
+    let mut out = tangency::Solution::empty(5, 2, f.backend().method());
+    f.solve_into(convex.linear(), convex.rhs(), &mut ws, &mut out).unwrap();
+    let dense = solve(&convex, Method::Dense).unwrap();
+    assert_close(&out.x, &dense.x, 1e-12, "x");
+    assert_close(&out.y, &dense.y, 1e-12, "y");
+}
+
 // ---------- which method auto picks ----------
 
 #[test]

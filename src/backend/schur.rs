@@ -30,6 +30,7 @@ use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
 use faer::linalg::cholesky::llt::factor::{self as llt, LltRegularization};
 use faer::linalg::matmul::triangular::{self as tri, BlockStructure};
 use faer::linalg::triangular_solve;
+use faer::mat::AsMatMut;
 use faer::{Accum, Mat, MatMut, Par};
 
 use crate::backend::{auto, KktBackend, SingularFindings};
@@ -204,21 +205,27 @@ impl<T: Real> Factors<T> {
             .map_err(|e| format!("{e}: A is (numerically) rank-deficient"))
     }
 
-    /// `[f; g] ← K⁻¹[f; g]` with these factors (in their precision).
-    fn solve(&self, mut rhs: MatMut<'_, f64>) {
+    /// `[f; g] ← K⁻¹[f; g]` with these factors (in their precision), the working copies in
+    /// `stack` (see [`solve_scratch`](Factors::solve_scratch)).
+    fn solve(&self, mut rhs: MatMut<'_, f64>, stack: &mut MemStack) {
         let (n, m) = (self.l.nrows(), self.ls.nrows());
         let k = rhs.ncols();
-        let mut top = Mat::<T>::from_fn(n, k, |i, j| T::of(rhs[(i, j)]));
+        let (mut top, stack) = faer::linalg::temp_mat_zeroed::<T, _, _>(n, k, stack);
+        let mut top = top.as_mat_mut();
+        let (mut t, _) = faer::linalg::temp_mat_zeroed::<T, _, _>(m, k, stack);
+        let mut t = t.as_mat_mut();
+        for j in 0..k {
+            for i in 0..n {
+                top[(i, j)] = T::of(rhs[(i, j)]);
+            }
+            for i in 0..m {
+                t[(i, j)] = T::of(-rhs[(n + i, j)]);
+            }
+        }
         // u = L⁻¹ f
         triangular_solve::solve_lower_triangular_in_place(self.l.as_ref(), top.as_mut(), Par::Seq);
-        let mut t = Mat::<T>::zeros(m, k);
         if m > 0 {
             // y = S⁻¹ (Wᵀu − g)
-            for j in 0..k {
-                for i in 0..m {
-                    t[(i, j)] = T::of(-rhs[(n + i, j)]);
-                }
-            }
             faer::linalg::matmul::matmul(
                 t.as_mut(),
                 Accum::Add,
@@ -249,6 +256,12 @@ impl<T: Real> Factors<T> {
             }
         }
     }
+}
+
+/// Scratch of a solve with `nrhs` right-hand sides: the working copies of `[f; g]`, sized
+/// for `f64` so that it also covers `f32` factors (a refactorization may switch precision).
+fn solve_scratch(n: usize, m: usize, nrhs: usize) -> StackReq {
+    faer::linalg::temp_mat_scratch::<f64>(n, nrhs).and(faer::linalg::temp_mat_scratch::<f64>(m, nrhs))
 }
 
 /// Cholesky in place (lower), with the pivot check; `Err(reason)` on failure.
@@ -386,42 +399,38 @@ impl Schur {
         let norm_k = kkt::norm_inf(problem);
         let mut z = vec![0.0; dim];
         let mut r = rhs.clone();
+        let mut col = Mat::<f64>::zeros(dim, 1);
+        let mut buf = MemBuffer::new(solve_scratch(self.n, self.m, 1));
         let mut omega = f64::INFINITY;
         for step in 0..4 {
             let previous = omega;
-            let mut col = Mat::from_fn(dim, 1, |i, _| r[i]);
-            self.solve_own(col.as_mut());
-            for i in 0..dim {
-                z[i] += col[(i, 0)];
-            }
+            col.col_as_slice_mut(0).copy_from_slice(&r);
+            self.solve_own(col.as_mut(), MemStack::new(&mut buf));
+            z.iter_mut().zip(col.col_as_slice(0)).for_each(|(zi, d)| *zi += d);
             kkt::residual(problem, &z, &rhs, &mut r);
             omega = crate::solver::normwise(&r, norm_k, &z, &rhs);
             // Accept as soon as the probe meets the bar, or (single-precision factors) once a
             // refinement step has contracted the backward error by 10³ or more: refinement
-            // converges, and the solves proper refine to full accuracy.
+            // converges, and the solves proper refine to full accuracy. A NaN (overflow in the
+            // factors) meets neither.
             let contracted = self.mixed && step > 0 && omega <= PROBE_CONTRACTION * previous;
             if omega <= self.params.probe_backward_error || contracted {
-                omega = omega.min(self.params.probe_backward_error);
-                break;
+                return Ok(());
             }
         }
-        // Anything but a finite ω within the bar is refused: a NaN (overflow in the factors) too.
-        if omega.is_nan() || omega > self.params.probe_backward_error {
-            return Err(format!(
-                "a probe solve on K kept a backward error of {omega:.1e} after refinement \
-                 (> {:.0e}): H or A H⁻¹ Aᵀ is too ill-conditioned for this method{}",
-                self.params.probe_backward_error,
-                if self.mixed { " in single precision" } else { "" }
-            ));
-        }
-        Ok(())
+        Err(format!(
+            "a probe solve on K kept a backward error of {omega:.1e} after refinement \
+             (> {:.0e}): H or A H⁻¹ Aᵀ is too ill-conditioned for this method{}",
+            self.params.probe_backward_error,
+            if self.mixed { " in single precision" } else { "" }
+        ))
     }
 
-    fn solve_own(&self, rhs: MatMut<'_, f64>) {
+    fn solve_own(&self, rhs: MatMut<'_, f64>, stack: &mut MemStack) {
         if self.mixed {
-            self.single.solve(rhs)
+            self.single.solve(rhs, stack)
         } else {
-            self.double.solve(rhs)
+            self.double.solve(rhs, stack)
         }
     }
 }
@@ -471,14 +480,14 @@ impl KktBackend for Schur {
     fn solve_scratch(&self, nrhs: usize) -> StackReq {
         match &self.fallback {
             Some(f) => f.solve_scratch(nrhs),
-            None => StackReq::EMPTY,
+            None => solve_scratch(self.n, self.m, nrhs),
         }
     }
 
     fn solve_in_place(&self, rhs: MatMut<'_, f64>, stack: &mut MemStack) {
         match &self.fallback {
             Some(f) => f.solve_in_place(rhs, stack),
-            None => self.solve_own(rhs),
+            None => self.solve_own(rhs, stack),
         }
     }
 
