@@ -16,6 +16,7 @@ use crate::backend::sparse_ldlt::{self, SparseAnalysis, SparseLdlt, SparseParams
 use crate::backend::{auto, KktBackend};
 use crate::error::{Block, Error, Result};
 use crate::kkt;
+use crate::problem::inf_norm;
 use crate::problem::{check_vector, Problem};
 use crate::solution::{Inertia, MethodUsed, Solution, Timing, Verdict};
 
@@ -735,10 +736,6 @@ impl Workspace {
         }
         Ok(())
     }
-}
-
-fn inf_norm(v: &[f64]) -> f64 {
-    v.iter().fold(0.0f64, |a, x| a.max(x.abs()))
 }
 
 /// Normwise backward error `‖r‖∞ / (‖K‖∞‖z‖∞ + ‖rhs‖∞)` (Rigal & Gaches 1967).

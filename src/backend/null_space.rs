@@ -28,6 +28,7 @@ use faer::{Mat, MatMut, Par, Side};
 use crate::backend::{KktBackend, SingularFindings};
 use crate::diagnostics::rank::{RankAnalysis, DEFAULT_CONSISTENCY_TOLERANCE, DEFAULT_RANK_TOLERANCE_FACTOR};
 use crate::error::{Error, Result};
+use crate::problem::norm2;
 use crate::problem::{Matrix, Problem};
 use crate::solution::{Inertia, MethodUsed, Verdict};
 
@@ -217,10 +218,6 @@ impl NullSpace {
 fn neg_mul_add(h: &Matrix, x: &[f64], y: &mut [f64]) {
     let neg: Vec<f64> = x.iter().map(|v| -v).collect();
     h.mul_add(&neg, y);
-}
-
-fn norm2(v: &[f64]) -> f64 {
-    v.iter().map(|x| x * x).sum::<f64>().sqrt()
 }
 
 impl KktBackend for NullSpace {

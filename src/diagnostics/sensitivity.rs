@@ -39,6 +39,7 @@ use faer::{Mat, MatRef};
 
 use crate::error::{Error, Result};
 use crate::kkt;
+use crate::problem::dot;
 use crate::problem::{Matrix, DEFAULT_SYMMETRY_TOLERANCE};
 use crate::solution::Solution;
 use crate::solver::{normwise, Factorization};
@@ -510,10 +511,6 @@ pub(crate) fn solve_refined(f: &Factorization, rhs: MatRef<'_, f64>) -> Result<(
         });
     }
     Ok((z, worst))
-}
-
-fn dot(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(p, q)| p * q).sum()
 }
 
 fn bad(detail: String) -> Error {

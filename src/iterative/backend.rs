@@ -109,18 +109,8 @@ impl KktBackend for MinresBackend {
                 Ok(out) if out.converged => out.z,
                 Ok(out) => {
                     let mut r = vec![0.0; col.len()];
-                    crate::kkt::residual(&self.problem, &out.z, &col, &mut r);
-                    let norm = |v: &[f64]| v.iter().map(|t| t * t).sum::<f64>().sqrt();
-                    let rhs_norm = norm(&col);
-                    let err = Error::NotConverged {
-                        method: "minres",
-                        iterations: out.iterations,
-                        residual: out.history.last().copied().unwrap_or(f64::NAN),
-                        true_residual: if rhs_norm > 0.0 { norm(&r) / rhs_norm } else { norm(&r) },
-                        tolerance: self.tol,
-                        history_tail: super::history_tail(&out.history, super::HISTORY_TAIL).to_vec(),
-                    };
-                    self.record(err);
+                    let true_residual = super::true_relative_residual(&self.problem, &out.z, &col, &mut r);
+                    self.record(super::not_converged(&out, true_residual, self.tol));
                     vec![f64::NAN; col.len()]
                 }
                 Err(e) => {

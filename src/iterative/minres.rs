@@ -22,6 +22,7 @@ use faer::{MatMut, MatRef, Par};
 use super::operator::KktOperator;
 use super::precond::Preconditioner;
 use crate::error::{Error, Result};
+use crate::problem::dot;
 
 /// A [`KktOperator`] seen as a faer `LinOp` (`K·z` on each column; `K` is real symmetric,
 /// so the conjugate product is the same).
@@ -149,10 +150,6 @@ pub struct MinresOutcome {
 /// `v = rᵀP⁻¹r` is admissible (finite and non-negative).
 fn spd_ok(v: f64) -> bool {
     v.is_finite() && v >= 0.0
-}
-
-fn dot(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| x * y).sum()
 }
 
 /// Runs preconditioned MINRES on `K z = rhs` from `z0` (zero if `None`).

@@ -116,6 +116,30 @@ pub fn solve(problem: &Problem, options: &IterativeOptions) -> Result<IterativeS
     finish(problem, &rhs, out, options, factor_s, solve_s)
 }
 
+/// `‖rhs − Kz‖₂ / ‖rhs‖₂` (the plain 2-norm when `rhs = 0`), leaving the residual in `r`.
+pub(crate) fn true_relative_residual(problem: &Problem, z: &[f64], rhs: &[f64], r: &mut [f64]) -> f64 {
+    kkt::residual(problem, z, rhs, r);
+    let rn = crate::problem::norm2(rhs);
+    let r2 = crate::problem::norm2(r);
+    if rn > 0.0 {
+        r2 / rn
+    } else {
+        r2
+    }
+}
+
+/// The [`Error::NotConverged`] of a MINRES run that stopped at its iteration limit.
+pub(crate) fn not_converged(out: &MinresOutcome, true_residual: f64, tol: f64) -> Error {
+    Error::NotConverged {
+        method: "minres",
+        iterations: out.iterations,
+        residual: out.history.last().copied().unwrap_or(f64::NAN),
+        true_residual,
+        tolerance: tol,
+        history_tail: history_tail(&out.history, HISTORY_TAIL).to_vec(),
+    }
+}
+
 /// Builds the certified [`IterativeSolution`] (or [`Error::NotConverged`]) from a MINRES
 /// outcome on `problem`'s KKT system.
 pub fn finish(
@@ -128,19 +152,9 @@ pub fn finish(
 ) -> Result<IterativeSolution> {
     let n = problem.n();
     let mut r = vec![0.0; rhs.len()];
-    kkt::residual(problem, &out.z, rhs, &mut r);
-    let norm2 = |v: &[f64]| v.iter().map(|x| x * x).sum::<f64>().sqrt();
-    let rn = norm2(rhs);
-    let relative_residual = if rn > 0.0 { norm2(&r) / rn } else { norm2(&r) };
+    let relative_residual = true_relative_residual(problem, &out.z, rhs, &mut r);
     if !out.converged {
-        return Err(Error::NotConverged {
-            method: "minres",
-            iterations: out.iterations,
-            residual: out.history.last().copied().unwrap_or(f64::NAN),
-            true_residual: relative_residual,
-            tolerance: options.tol,
-            history_tail: history_tail(&out.history, HISTORY_TAIL).to_vec(),
-        });
+        return Err(not_converged(&out, relative_residual, options.tol));
     }
     let norm_k = kkt::norm_inf(problem);
     let backward_error = crate::solver::normwise(&r, norm_k, &out.z, rhs);

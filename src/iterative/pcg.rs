@@ -44,7 +44,7 @@ use std::time::Instant;
 
 use crate::error::{Error, Result};
 use crate::kkt;
-use crate::problem::{Problem, ProblemBuilder, Triangle};
+use crate::problem::{dot, norm2, Problem, ProblemBuilder, Triangle};
 use crate::solution::{MethodUsed, Solution, Timing, Verdict};
 use crate::solver::{Factorization, Method, Options, Plan};
 
@@ -108,14 +108,6 @@ pub struct PcgSolution {
     pub relative_residual: f64,
     /// How PCG ended.
     pub status: PcgStatus,
-}
-
-fn dot(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| x * y).sum()
-}
-
-fn norm2(a: &[f64]) -> f64 {
-    dot(a, a).sqrt()
 }
 
 /// The constraint preconditioner `G = [D Aᵀ; A 0]`, factored once.

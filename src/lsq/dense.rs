@@ -390,7 +390,7 @@ pub(super) fn fit(pr: &LsqProblem, opt: &FitOptions) -> Result<Fit> {
             }
             v[r + b.perm[kk]] = 1.0;
             fac.qc_apply(&mut v);
-            let norm = v.iter().map(|x| x * x).sum::<f64>().sqrt();
+            let norm = crate::problem::norm2(&v);
             v.iter_mut().for_each(|x| *x /= norm);
             let big: Vec<String> = largest_entries(&v, 4)
                 .into_iter()

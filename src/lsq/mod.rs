@@ -608,6 +608,4 @@ pub(crate) fn default_tol(rows: usize, cols: usize, opt: Option<f64>) -> f64 {
     opt.unwrap_or_else(|| rows.max(cols).max(1) as f64 * f64::EPSILON)
 }
 
-pub(crate) fn inf_norm(v: &[f64]) -> f64 {
-    v.iter().fold(0.0f64, |a, x| a.max(x.abs()))
-}
+pub(crate) use crate::problem::inf_norm;

@@ -148,6 +148,16 @@ pub(crate) fn dot(a: &[f64], b: &[f64]) -> f64 {
     a.iter().zip(b).map(|(p, q)| p * q).sum()
 }
 
+/// Euclidean norm.
+pub(crate) fn norm2(v: &[f64]) -> f64 {
+    dot(v, v).sqrt()
+}
+
+/// Largest absolute entry (0 for an empty vector).
+pub(crate) fn inf_norm(v: &[f64]) -> f64 {
+    v.iter().fold(0.0f64, |a, x| a.max(x.abs()))
+}
+
 pub(crate) fn check_vector(block: Block, v: &[f64], expected: usize) -> Result<()> {
     if v.len() != expected {
         return Err(Error::DimensionMismatch {
