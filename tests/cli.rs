@@ -2,31 +2,9 @@
 //! contract, the exit codes and the files it writes.
 
 use std::path::Path;
-use std::process::Command;
 
-use serde_json::Value;
-
-fn run(args: &[&str]) -> (i32, String, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_tangency"))
-        .args(args)
-        .output()
-        .expect("binary runs");
-    (
-        out.status.code().expect("exit code"),
-        String::from_utf8(out.stdout).unwrap(),
-        String::from_utf8(out.stderr).unwrap(),
-    )
-}
-
-fn json(stdout: &str) -> Value {
-    let trimmed = stdout.trim();
-    assert_eq!(
-        trimmed.lines().count(),
-        1,
-        "exactly one JSON line expected, got: {stdout}"
-    );
-    serde_json::from_str(trimmed).unwrap_or_else(|e| panic!("invalid JSON ({e}): {stdout}"))
-}
+mod common;
+use common::{one_json as json, run_cli as run};
 
 fn write(dir: &Path, name: &str, text: &str) {
     std::fs::write(dir.join(name), text).unwrap();

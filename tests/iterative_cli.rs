@@ -1,27 +1,8 @@
 //! `tangency solve --method minres` end to end: JSON keys, exit codes 0 / 4 / 2, and the
 //! answer against the sparse direct backend run by the same binary.
 
-use std::process::Command;
-
-use serde_json::Value;
-
-fn run(args: &[&str]) -> (i32, String, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_tangency"))
-        .args(args)
-        .output()
-        .expect("binary runs");
-    (
-        out.status.code().expect("exit code"),
-        String::from_utf8(out.stdout).unwrap(),
-        String::from_utf8(out.stderr).unwrap(),
-    )
-}
-
-fn json(stdout: &str) -> Value {
-    let t = stdout.trim();
-    assert_eq!(t.lines().count(), 1, "exactly one JSON line expected: {stdout}");
-    serde_json::from_str(t).unwrap()
-}
+mod common;
+use common::{one_json as json, run_cli as run};
 
 fn generate(k: usize) -> tempfile::TempDir {
     let dir = tempfile::tempdir().unwrap();

@@ -107,3 +107,27 @@ pub fn max_abs_diff(a: &[f64], b: &[f64]) -> f64 {
 pub fn inf_norm(a: &[f64]) -> f64 {
     a.iter().fold(0.0f64, |acc, x| acc.max(x.abs()))
 }
+
+/// Runs the `tangency` binary: (exit code, stdout, stderr).
+pub fn run_cli(args: &[&str]) -> (i32, String, String) {
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_tangency"))
+        .args(args)
+        .output()
+        .expect("binary runs");
+    (
+        out.status.code().expect("exit code"),
+        String::from_utf8(out.stdout).unwrap(),
+        String::from_utf8(out.stderr).unwrap(),
+    )
+}
+
+/// The single JSON object a `--json` run prints (fails on anything else).
+pub fn one_json(stdout: &str) -> serde_json::Value {
+    let trimmed = stdout.trim();
+    assert_eq!(
+        trimmed.lines().count(),
+        1,
+        "exactly one JSON line expected, got: {stdout}"
+    );
+    serde_json::from_str(trimmed).unwrap_or_else(|e| panic!("invalid JSON ({e}): {stdout}"))
+}
