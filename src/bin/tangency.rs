@@ -432,6 +432,23 @@ fn fail_iterative(err: Error, sizes: Option<(usize, usize)>, method: &str, json:
     ExitCode::from(exit_code(&err))
 }
 
+/// The solution JSON of an iterative method with its Krylov figures: `iterations`,
+/// `residual_history_tail` (the last few entries of `history`) and `relative_residual`.
+fn iterative_json(
+    problem: &tangency::Problem,
+    solution: &tangency::Solution,
+    iterations: usize,
+    history: &[f64],
+    relative_residual: f64,
+) -> Json {
+    use tangency::iterative::{history_tail, HISTORY_TAIL};
+    let mut o = solution_json(problem, solution);
+    o.set("iterations", iterations);
+    o.set("residual_history_tail", history_tail(history, HISTORY_TAIL));
+    o.set("relative_residual", relative_residual);
+    o
+}
+
 /// `solve --method minres`: the iterative path (inertia and verdict are not observed).
 fn solve_iterative(
     dir: &std::path::Path,
@@ -441,7 +458,7 @@ fn solve_iterative(
     out: Option<&std::path::Path>,
     json: bool,
 ) -> ExitCode {
-    use tangency::iterative::{self, history_tail, IterativeOptions, SecondBlock, HISTORY_TAIL};
+    use tangency::iterative::{self, IterativeOptions, SecondBlock};
     let fail = |err: Error, sizes: Option<(usize, usize)>| fail_iterative(err, sizes, "minres", json);
     let second = match schur_block {
         "cholesky" => SecondBlock::Cholesky,
@@ -478,12 +495,14 @@ fn solve_iterative(
             return fail(e, sizes);
         }
     }
-    let tail = history_tail(&result.residual_history, HISTORY_TAIL);
     if json {
-        let mut o = solution_json(&problem, solution);
-        o.set("iterations", result.iterations);
-        o.set("residual_history_tail", tail);
-        o.set("relative_residual", result.relative_residual);
+        let o = iterative_json(
+            &problem,
+            solution,
+            result.iterations,
+            &result.residual_history,
+            result.relative_residual,
+        );
         println!("{o}");
     } else {
         print!("{}", human(&problem, solution));
@@ -499,7 +518,7 @@ fn solve_iterative(
 /// `solve --method pcg`: projected CG (inertia not observed; the verdict is `saddle` only
 /// when a direction of negative curvature proved it).
 fn solve_pcg(dir: &std::path::Path, tol: f64, max_iter: usize, out: Option<&std::path::Path>, json: bool) -> ExitCode {
-    use tangency::iterative::{history_tail, pcg, PcgOptions, PcgStatus, HISTORY_TAIL};
+    use tangency::iterative::{pcg, PcgOptions, PcgStatus};
     let fail = |err: Error, sizes: Option<(usize, usize)>| fail_iterative(err, sizes, "pcg", json);
     let problem = match io::read_problem_dir(dir) {
         Ok(p) => p,
@@ -522,17 +541,19 @@ fn solve_pcg(dir: &std::path::Path, tol: f64, max_iter: usize, out: Option<&std:
             return fail(e, sizes);
         }
     }
-    let tail = history_tail(&result.residual_history, HISTORY_TAIL);
     let max_feas = result.feasibility_history.iter().fold(0.0f64, |a, v| a.max(*v));
     let curvature = match &result.status {
         PcgStatus::Converged => None,
         PcgStatus::NonPositiveCurvature { curvature, .. } => Some(*curvature),
     };
     if json {
-        let mut o = solution_json(&problem, solution);
-        o.set("iterations", result.iterations);
-        o.set("residual_history_tail", tail);
-        o.set("relative_residual", result.relative_residual);
+        let mut o = iterative_json(
+            &problem,
+            solution,
+            result.iterations,
+            &result.residual_history,
+            result.relative_residual,
+        );
         o.set("max_iterate_infeasibility", max_feas);
         o.set("minres_iterations", result.minres_iterations);
         o.set("negative_curvature", curvature);
