@@ -81,7 +81,7 @@ struct State {
 }
 
 pub(super) fn fit(pr: &LsqProblem, opt: &FitOptions) -> Result<Fit> {
-    let (p, n, q) = (pr.p(), pr.n(), pr.q());
+    let (p, n) = (pr.p(), pr.n());
     let RestrictionAnalysis {
         r: rank_c,
         sel,
@@ -144,44 +144,24 @@ pub(super) fn fit(pr: &LsqProblem, opt: &FitOptions) -> Result<Fit> {
             }
         },
     )?;
-    let mut multipliers = vec![0.0; q];
-    for (j, &i) in sel.iter().enumerate() {
-        multipliers[i] = st.yc[j];
-    }
-    let (residuals, rss) = pr.residuals(&st.beta);
-    let dof = (p + rank_c).saturating_sub(n);
-    let mut out = Fit {
-        coefficients: st.beta.clone(),
-        residuals,
-        multipliers,
-        rss,
-        dof,
-        sigma2: None,
+    let mut out = Fit::point(
+        pr,
+        &st.beta,
+        &sel,
+        &st.yc,
         rank_c,
-        dependent_restrictions: dependent,
-        covariance: None,
-        standard_errors: None,
-        restriction_test: None,
-        refinement_steps: log.steps,
-        refinement_history: log.history,
-        method: FitMethod::Augmented,
-        notes: std::mem::take(&mut notes),
-    };
+        dependent,
+        log,
+        FitMethod::Augmented,
+        std::mem::take(&mut notes),
+    );
     if !opt.inference {
         return Ok(out);
     }
-    if pr.ridge > 0.0 {
-        out.notes
-            .push("λ > 0: σ̂², standard errors and the restriction test are not reported".into());
+    let Some(sigma2) = out.start_inference(pr.ridge) else {
         return Ok(out);
-    }
-    if dof == 0 {
-        out.notes
-            .push("no residual degrees of freedom (p − n + rank C = 0): σ̂² is undefined".into());
-        return Ok(out);
-    }
-    let sigma2 = rss / dof as f64;
-    out.sigma2 = Some(sigma2);
+    };
+    let rss = out.rss;
     if n <= opt.augmented_covariance_max_n {
         // Column j of Z(ZᵀFᵀWFZ)⁻¹Zᵀ is the β of: min ½βᵀFᵀWFβ − βⱼ s.t. C₁β = 0.
         let mut cov = faer::Mat::<f64>::zeros(n, n);

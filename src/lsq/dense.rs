@@ -310,7 +310,7 @@ struct State {
 }
 
 pub(super) fn fit(pr: &LsqProblem, opt: &FitOptions) -> Result<Fit> {
-    let (p, n, q) = (pr.p(), pr.n(), pr.q());
+    let (p, n) = (pr.p(), pr.n());
     let lam = pr.ridge;
     let pt = p + if lam > 0.0 { n } else { 0 };
     // F̃ and g̃.
@@ -441,39 +441,20 @@ pub(super) fn fit(pr: &LsqProblem, opt: &FitOptions) -> Result<Fit> {
             }
         },
     )?;
-    let mut multipliers = vec![0.0; q];
-    for (j, &i) in fac.sel.iter().enumerate() {
-        multipliers[i] = st.y[j];
-    }
-    let (residuals, rss) = pr.residuals(&st.beta);
-    let dof = (p + r).saturating_sub(n);
-    let mut out = Fit {
-        coefficients: st.beta.clone(),
-        residuals,
-        multipliers,
-        rss,
-        dof,
-        sigma2: None,
-        rank_c: r,
-        dependent_restrictions: dependent,
-        covariance: None,
-        standard_errors: None,
-        restriction_test: None,
-        refinement_steps: log.steps,
-        refinement_history: log.history,
-        method: FitMethod::Dense,
+    let mut out = Fit::point(
+        pr,
+        &st.beta,
+        &fac.sel,
+        &st.y,
+        r,
+        dependent,
+        log,
+        FitMethod::Dense,
         notes,
-    };
+    );
     if opt.inference {
-        if lam > 0.0 {
-            out.notes
-                .push("λ > 0: σ̂², standard errors and the restriction test are not reported".into());
-        } else if dof == 0 {
-            out.notes
-                .push("no residual degrees of freedom (p − n + rank C = 0): σ̂² is undefined".into());
-        } else {
-            let sigma2 = rss / dof as f64;
-            out.sigma2 = Some(sigma2);
+        if let Some(sigma2) = out.start_inference(lam) {
+            let rss = out.rss;
             let cov = covariance(&fac, sigma2);
             out.standard_errors = Some((0..n).map(|i| cov[(i, i)].max(0.0).sqrt()).collect());
             out.covariance = Some(cov);

@@ -598,6 +598,63 @@ pub struct Fit {
 }
 
 impl Fit {
+    /// The point estimate of a fit without inference: coefficients `beta`, the residuals and
+    /// RSS recomputed from `pr`, the multipliers `y_sel` of the independent restrictions
+    /// `sel` scattered to all `q` (dependent ones get 0), `dof = p − n + rank C`.
+    #[allow(clippy::too_many_arguments)]
+    pub(crate) fn point(
+        pr: &LsqProblem,
+        beta: &[f64],
+        sel: &[usize],
+        y_sel: &[f64],
+        rank_c: usize,
+        dependent_restrictions: Vec<usize>,
+        log: refine::RefineLog,
+        method: FitMethod,
+        notes: Vec<String>,
+    ) -> Fit {
+        let mut multipliers = vec![0.0; pr.q()];
+        for (&i, &y) in sel.iter().zip(y_sel) {
+            multipliers[i] = y;
+        }
+        let (residuals, rss) = pr.residuals(beta);
+        Fit {
+            coefficients: beta.to_vec(),
+            residuals,
+            multipliers,
+            rss,
+            dof: (pr.p() + rank_c).saturating_sub(pr.n()),
+            sigma2: None,
+            rank_c,
+            dependent_restrictions,
+            covariance: None,
+            standard_errors: None,
+            restriction_test: None,
+            refinement_steps: log.steps,
+            refinement_history: log.history,
+            method,
+            notes,
+        }
+    }
+
+    /// Sets and returns `σ̂² = RSS / dof` when inference is defined; otherwise says why in the
+    /// notes (ridge penalty, no residual degrees of freedom) and returns `None`.
+    pub(crate) fn start_inference(&mut self, ridge: f64) -> Option<f64> {
+        if ridge > 0.0 {
+            self.notes
+                .push("λ > 0: σ̂², standard errors and the restriction test are not reported".into());
+            return None;
+        }
+        if self.dof == 0 {
+            self.notes
+                .push("no residual degrees of freedom (p − n + rank C = 0): σ̂² is undefined".into());
+            return None;
+        }
+        let sigma2 = self.rss / self.dof as f64;
+        self.sigma2 = Some(sigma2);
+        Some(sigma2)
+    }
+
     /// `σ̂`, when defined.
     pub fn sigma(&self) -> Option<f64> {
         self.sigma2.map(f64::sqrt)
