@@ -128,6 +128,34 @@ pub(crate) fn true_relative_residual(problem: &Problem, z: &[f64], rhs: &[f64], 
     }
 }
 
+/// The [`Solution`] of an iterate `z = [x; y]` of `K z = rhs` whose residual `rhs − K z` is
+/// `r`: objective, residuals and backward error on the original K, no inertia or verdict.
+pub(crate) fn certified_solution(
+    problem: &Problem,
+    z: &[f64],
+    rhs: &[f64],
+    r: &[f64],
+    method: MethodUsed,
+    (factor_s, solve_s): (f64, f64),
+) -> Solution {
+    let (n, m) = (problem.n(), problem.m());
+    let (x, y) = z.split_at(n);
+    let (primal_residual, dual_residual) = problem.residuals(x, y);
+    let mut s = Solution::empty(n, m, method);
+    s.x.copy_from_slice(x);
+    s.y.copy_from_slice(y);
+    s.objective = problem.objective(x);
+    s.primal_residual = primal_residual;
+    s.dual_residual = dual_residual;
+    s.backward_error = crate::solver::normwise(r, kkt::norm_inf(problem), z, rhs);
+    s.timing = Timing {
+        analyze_s: 0.0,
+        factor_s,
+        solve_s,
+    };
+    s
+}
+
 /// The [`Error::NotConverged`] of a MINRES run that stopped at its iteration limit.
 pub(crate) fn not_converged(out: &MinresOutcome, true_residual: f64, tol: f64) -> Error {
     Error::NotConverged {
@@ -150,28 +178,12 @@ pub fn finish(
     factor_s: f64,
     solve_s: f64,
 ) -> Result<IterativeSolution> {
-    let n = problem.n();
     let mut r = vec![0.0; rhs.len()];
     let relative_residual = true_relative_residual(problem, &out.z, rhs, &mut r);
     if !out.converged {
         return Err(not_converged(&out, relative_residual, options.tol));
     }
-    let norm_k = kkt::norm_inf(problem);
-    let backward_error = crate::solver::normwise(&r, norm_k, &out.z, rhs);
-    let (x, y) = out.z.split_at(n);
-    let (primal_residual, dual_residual) = problem.residuals(x, y);
-    let mut s = Solution::empty(n, problem.m(), MethodUsed::Minres);
-    s.x.copy_from_slice(x);
-    s.y.copy_from_slice(y);
-    s.objective = problem.objective(x);
-    s.primal_residual = primal_residual;
-    s.dual_residual = dual_residual;
-    s.backward_error = backward_error;
-    s.timing = Timing {
-        analyze_s: 0.0,
-        factor_s,
-        solve_s,
-    };
+    let mut s = certified_solution(problem, &out.z, rhs, &r, MethodUsed::Minres, (factor_s, solve_s));
     s.notes.push(format!(
         "MINRES: {} iteration(s), relative preconditioned residual {:.2e} (tolerance {:.1e}), true relative residual {:.2e}; \
          inertia and verdict NOT verified (an iterative method does not see the inertia of K)",

@@ -45,7 +45,7 @@ use std::time::Instant;
 use crate::error::{Error, Result};
 use crate::kkt;
 use crate::problem::{dot, norm2, Problem, ProblemBuilder, Triangle};
-use crate::solution::{MethodUsed, Solution, Timing, Verdict};
+use crate::solution::{MethodUsed, Solution, Verdict};
 use crate::solver::{Factorization, Method, Options, Plan};
 
 use super::{history_tail, BlockDiagonal, FirstBlock, SecondBlock, HISTORY_TAIL};
@@ -284,12 +284,11 @@ pub fn pcg(problem: &Problem, options: &PcgOptions) -> Result<PcgSolution> {
     match &status {
         PcgStatus::Converged if !converged => {
             let mut res = vec![0.0; n + m];
-            kkt::residual(problem, &z, &rhs, &mut res);
             return Err(Error::NotConverged {
                 method: "pcg",
                 iterations: itn,
                 residual: residual_history.last().copied().unwrap_or(f64::NAN),
-                true_residual: norm2(&res) / scale,
+                true_residual: super::true_relative_residual(problem, &z, &rhs, &mut res),
                 tolerance: options.tol,
                 history_tail: history_tail(&residual_history, HISTORY_TAIL).to_vec(),
             });
@@ -317,13 +316,13 @@ pub fn pcg(problem: &Problem, options: &PcgOptions) -> Result<PcgSolution> {
             let out = super::minres(problem, &pre, &rhs, Some(&z), options.tol, options.max_iter)?;
             minres_iterations = out.iterations;
             let mut res = vec![0.0; n + m];
-            kkt::residual(problem, &out.z, &rhs, &mut res);
+            let true_residual = super::true_relative_residual(problem, &out.z, &rhs, &mut res);
             if !out.converged {
                 return Err(Error::NotConverged {
                     method: "pcg",
                     iterations: itn + out.iterations,
                     residual: out.history.last().copied().unwrap_or(f64::NAN),
-                    true_residual: norm2(&res) / scale,
+                    true_residual,
                     tolerance: options.tol,
                     history_tail: history_tail(&out.history, HISTORY_TAIL).to_vec(),
                 });
@@ -348,24 +347,9 @@ pub fn pcg(problem: &Problem, options: &PcgOptions) -> Result<PcgSolution> {
     }
     let solve_s = t1.elapsed().as_secs_f64();
     let mut res = vec![0.0; n + m];
-    kkt::residual(problem, &z, &rhs, &mut res);
-    let relative_residual = norm2(&res) / scale;
-    let norm_k = kkt::norm_inf(problem);
-    let (xs, ys) = z.split_at(n);
-    let (primal_residual, dual_residual) = problem.residuals(xs, ys);
-    let mut s = Solution::empty(n, m, MethodUsed::Pcg);
-    s.x.copy_from_slice(xs);
-    s.y.copy_from_slice(ys);
-    s.objective = problem.objective(xs);
-    s.primal_residual = primal_residual;
-    s.dual_residual = dual_residual;
-    s.backward_error = crate::solver::normwise(&res, norm_k, &z, &rhs);
+    let relative_residual = super::true_relative_residual(problem, &z, &rhs, &mut res);
+    let mut s = super::certified_solution(problem, &z, &rhs, &res, MethodUsed::Pcg, (factor_s, solve_s));
     s.verdict = verdict;
-    s.timing = Timing {
-        analyze_s: 0.0,
-        factor_s,
-        solve_s,
-    };
     let max_feas = feasibility_history.iter().fold(0.0f64, |a, v| a.max(*v));
     s.notes.push(format!(
         "projected CG: {itn} iteration(s), relative KKT residual {:.2e} (tolerance {:.1e}); every iterate \
