@@ -16,8 +16,7 @@ use crate::backend::sparse_ldlt::{self, SparseAnalysis, SparseLdlt, SparseParams
 use crate::backend::{auto, KktBackend};
 use crate::error::{Block, Error, Result};
 use crate::kkt;
-use crate::problem::inf_norm;
-use crate::problem::{check_vector, Problem};
+use crate::problem::{check_vector, inf_norm, Problem};
 use crate::solution::{Inertia, MethodUsed, Solution, Timing, Verdict};
 
 /// Which factorization to use.
@@ -293,17 +292,6 @@ impl Plan {
                     ))
                 }
             },
-            MethodUsed::Minres => Box::new(
-                crate::iterative::backend::MinresBackend::new(
-                    problem,
-                    format!(
-                        "preconditioned MINRES (Jacobi and sparse-Cholesky Schur blocks, tolerance {:.0e} per solve): \
-                         inertia and verdict NOT verified",
-                        self.options.iterative_tol
-                    ),
-                )
-                .with_limits(self.options.iterative_tol, self.options.iterative_max_iter),
-            ),
             _ => auto::make_backend(self.method, problem, &self.options),
         };
         backend.factor(problem)?;

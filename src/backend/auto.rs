@@ -177,6 +177,18 @@ pub fn make_backend(method: MethodUsed, problem: &Problem, options: &Options) ->
     match method {
         MethodUsed::Schur => Box::new(Schur::new(problem, options)),
         MethodUsed::NullSpace => Box::new(NullSpace::new(problem, options.null_space)),
+        // Auto's choice when a direct factorization would exceed the memory budget.
+        MethodUsed::Minres => Box::new(
+            crate::iterative::backend::MinresBackend::new(
+                problem,
+                format!(
+                    "preconditioned MINRES (Jacobi and sparse-Cholesky Schur blocks, tolerance {:.0e} per solve): \
+                     inertia and verdict NOT verified",
+                    options.iterative_tol
+                ),
+            )
+            .with_limits(options.iterative_tol, options.iterative_max_iter),
+        ),
         // Dense LBLᵀ, and the default for methods this module does not build.
         _ => Box::new(DenseLblt::new(problem, options.dense)),
     }
