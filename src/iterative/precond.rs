@@ -244,7 +244,7 @@ impl BlockDiagonal {
             SecondBlock::Cholesky => {
                 // S = B Bᵀ with B = A D^{-1/2} (same pattern as A), by faer's sparse product.
                 let scale: Vec<f64> = diag.iter().map(|d| 1.0 / d.sqrt()).collect();
-                let b = scaled_columns(a, m, n, |j| (j, scale[j]));
+                let b = scaled_columns(a, m, 0..n, |j| scale[j]);
                 drop(scale);
                 let bt = b.as_ref().transpose().to_col_major().map_err(|e| Error::Resources {
                     detail: format!("transposing B = A D^(-1/2): {e:?}"),
@@ -273,53 +273,23 @@ impl Preconditioner for BlockDiagonal {
     }
 }
 
-/// The m×`ncols` matrix whose column `c` is `Σ_j w·A[:, j]` over the columns `j` of `A` with
-/// `map(j) = (c, w)`, built column by column in compressed form (rows sorted, equal rows
-/// summed) without triplets. `map` must send at most two columns of `A` to each `c`, and
-/// `ncols` must cover every `c`.
-fn scaled_columns(a: &Matrix, m: usize, ncols: usize, map: impl Fn(usize) -> (usize, f64)) -> SparseColMat<usize, f64> {
-    // Which columns of A feed each output column.
-    let mut feeds: Vec<[Option<(usize, f64)>; 2]> = vec![[None, None]; ncols];
-    for j in 0..a.ncols() {
-        let (c, w) = map(j);
-        let slot = &mut feeds[c];
-        if slot[0].is_none() {
-            slot[0] = Some((j, w));
-        } else {
-            slot[1] = Some((j, w));
-        }
-    }
+/// Columns `cols` of the m-row `A`, column `j` scaled by `w(j)`, in compressed form (rows
+/// sorted) without triplets.
+fn scaled_columns(
+    a: &Matrix,
+    m: usize,
+    cols: std::ops::Range<usize>,
+    w: impl Fn(usize) -> f64,
+) -> SparseColMat<usize, f64> {
+    let ncols = cols.len();
     let mut col_ptr = Vec::with_capacity(ncols + 1);
     col_ptr.push(0usize);
-    let mut row_idx = Vec::with_capacity(a.nnz());
-    let mut val = Vec::with_capacity(a.nnz());
-    let (mut c1, mut c2) = (Vec::new(), Vec::new());
-    for f in &feeds {
-        column(a, f[0], &mut c1);
-        column(a, f[1], &mut c2);
-        // Merge two sorted columns.
-        let (mut p, mut q) = (0, 0);
-        while p < c1.len() || q < c2.len() {
-            let (i, v) = match (c1.get(p), c2.get(q)) {
-                (Some(&(i1, v1)), Some(&(i2, v2))) if i1 == i2 => {
-                    p += 1;
-                    q += 1;
-                    (i1, v1 + v2)
-                }
-                (Some(&(i1, v1)), Some(&(i2, _))) if i1 < i2 => {
-                    p += 1;
-                    (i1, v1)
-                }
-                (Some(&(i1, v1)), None) => {
-                    p += 1;
-                    (i1, v1)
-                }
-                (_, Some(&(i2, v2))) => {
-                    q += 1;
-                    (i2, v2)
-                }
-                (None, None) => break,
-            };
+    let mut row_idx = Vec::new();
+    let mut val = Vec::new();
+    let mut c = Vec::new();
+    for j in cols {
+        column(a, Some((j, w(j))), &mut c);
+        for &(i, v) in &c {
             row_idx.push(i);
             val.push(v);
         }
@@ -388,17 +358,18 @@ impl MatchingBlock {
                  but A is {m}×{n}; use the cholesky or diagonal Schur block"
             )));
         }
+        let b1 = scaled_columns(a, m, 0..m, |j| 1.0 / d[j].sqrt());
+        let b2 = scaled_columns(a, m, m..n, |j| 1.0 / d[j].sqrt());
         // σ = sign of tr(B₁B₂ᵀ) = Σ_c Σ_i B₁[i,c]·B₂[i,c] (merge of sorted columns).
-        let (mut c1, mut c2) = (Vec::new(), Vec::new());
         let mut trace = 0.0;
         for c in 0..m {
-            column(a, Some((c, 1.0 / d[c].sqrt())), &mut c1);
-            column(a, Some((c + m, 1.0 / d[c + m].sqrt())), &mut c2);
+            let (r1, v1) = (b1.as_ref().row_idx_of_col_raw(c), b1.as_ref().val_of_col(c));
+            let (r2, v2) = (b2.as_ref().row_idx_of_col_raw(c), b2.as_ref().val_of_col(c));
             let (mut p, mut q) = (0, 0);
-            while p < c1.len() && q < c2.len() {
-                match c1[p].0.cmp(&c2[q].0) {
+            while p < r1.len() && q < r2.len() {
+                match r1[p].cmp(&r2[q]) {
                     std::cmp::Ordering::Equal => {
-                        trace += c1[p].1 * c2[q].1;
+                        trace += v1[p] * v2[q];
                         p += 1;
                         q += 1;
                     }
@@ -408,13 +379,16 @@ impl MatchingBlock {
             }
         }
         let sigma = if trace >= 0.0 { 1.0 } else { -1.0 };
-        let mat = scaled_columns(a, m, m, |j| {
-            if j < m {
-                (j, 1.0 / d[j].sqrt())
-            } else {
-                (j - m, sigma / d[j].sqrt())
-            }
-        });
+        let sum = if sigma > 0.0 {
+            faer::sparse::ops::add(b1.as_ref(), b2.as_ref())
+        } else {
+            faer::sparse::ops::sub(b1.as_ref(), b2.as_ref())
+        };
+        let mat = sum.map_err(|e| Error::Resources {
+            detail: format!("forming A₁D₁^(-1/2) ± A₂D₂^(-1/2): {e:?}"),
+        })?;
+        // Only M is needed from here: free the blocks before the factorization's peak.
+        drop((b1, b2));
         let factor = if is_symmetric(&mat) {
             match CholeskyBlock::from_matrix(&mat, "M") {
                 Ok(c) => MatchingFactor::Cholesky(c),
