@@ -40,6 +40,18 @@ pub fn rhs(c: &[f64], b: &[f64]) -> Vec<f64> {
 
 /// `out = rhs − K·z`, on the original (unscaled) blocks.
 pub fn residual(problem: &Problem, z: &[f64], rhs: &[f64], out: &mut [f64]) {
+    residual_into(problem, z, rhs, out, None);
+}
+
+/// [`residual`] that also copies `H·x − rhs_x` (= `Hx + c` for `rhs = [−c; b]`, the
+/// gradient of the objective) into `grad` (length n) on the way: the same operations in
+/// the same order, so `out` is bitwise the result of [`residual`] and `grad` bitwise that
+/// of `grad = c; H.mul_add(x, grad)`.
+pub fn residual_and_gradient(problem: &Problem, z: &[f64], rhs: &[f64], out: &mut [f64], grad: &mut [f64]) {
+    residual_into(problem, z, rhs, out, Some(grad));
+}
+
+fn residual_into(problem: &Problem, z: &[f64], rhs: &[f64], out: &mut [f64], grad: Option<&mut [f64]>) {
     let n = problem.n();
     // out = −(−rhs + K z), computed without a temporary.
     for (o, r) in out.iter_mut().zip(rhs) {
@@ -49,27 +61,9 @@ pub fn residual(problem: &Problem, z: &[f64], rhs: &[f64], out: &mut [f64]) {
     {
         let (ox, oy) = out.split_at_mut(n);
         problem.hessian().mul_add(x, ox);
-        problem.constraints().mul_add_both(x, oy, y, ox);
-    }
-    for o in out.iter_mut() {
-        *o = -*o;
-    }
-}
-
-/// [`residual`] that also copies `H·x − rhs_x` (= `Hx + c` for `rhs = [−c; b]`, the
-/// gradient of the objective) into `grad` (length n) on the way: the same operations in
-/// the same order, so `out` is bitwise the result of [`residual`] and `grad` bitwise that
-/// of `grad = c; H.mul_add(x, grad)`.
-pub fn residual_and_gradient(problem: &Problem, z: &[f64], rhs: &[f64], out: &mut [f64], grad: &mut [f64]) {
-    let n = problem.n();
-    for (o, r) in out.iter_mut().zip(rhs) {
-        *o = -r;
-    }
-    let (x, y) = z.split_at(n);
-    {
-        let (ox, oy) = out.split_at_mut(n);
-        problem.hessian().mul_add(x, ox);
-        grad.copy_from_slice(ox);
+        if let Some(grad) = grad {
+            grad.copy_from_slice(ox);
+        }
         problem.constraints().mul_add_both(x, oy, y, ox);
     }
     for o in out.iter_mut() {
