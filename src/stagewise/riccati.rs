@@ -146,18 +146,15 @@ struct Temps {
 /// block's stored values, offset in `data`).
 #[derive(Clone, Debug)]
 struct ScatterMap {
-    /// The blocks `H` and `A` last found to have the pattern copied below, held (shared) so
-    /// that their storage cannot be freed and reused by another matrix: a block is
-    /// immutable behind its reference count, so the same block has the same pattern. The
-    /// refactorization loop, which passes the [`Factorization`](crate::Factorization)'s
-    /// problem (sharing the caller's blocks), compares the pattern once instead of on every
-    /// call (the comparison read as many bytes as the value copy itself: about 5% of
-    /// refactor + solve at N = 200 in the bench).
-    verified: Option<(Arc<Matrix>, Arc<Matrix>)>,
-    h_col_ptr: Vec<usize>,
-    h_row_idx: Vec<usize>,
-    a_col_ptr: Vec<usize>,
-    a_row_idx: Vec<usize>,
+    /// The blocks `H` and `A` whose pattern this map describes (those it was built from, or
+    /// the last ones found to have the same pattern), held (shared) so that their storage
+    /// cannot be freed and reused by another matrix: a block is immutable behind its
+    /// reference count, so the same block has the same pattern. The refactorization loop,
+    /// which passes the [`Factorization`](crate::Factorization)'s problem (sharing the
+    /// caller's blocks), compares the pattern once instead of on every call (the comparison
+    /// read as many bytes as the value copy itself: about 5% of refactor + solve at N = 200
+    /// in the bench).
+    pattern: (Arc<Matrix>, Arc<Matrix>),
     /// `Qₖ, Sₖ, Rₖ` entries of `H`, as runs (see [`runs`]).
     h_put: Vec<(u32, u32, u32)>,
     /// `Dₖ, Eₖ` entries of `A`, as runs.
@@ -410,11 +407,7 @@ impl RiccatiBackend {
         }
         let (mut h_put, mut a_put, mut a_neg) = (Vec::new(), Vec::new(), Vec::new());
         let mut map = ScatterMap {
-            verified: None,
-            h_col_ptr: h.symbolic().col_ptr().to_vec(),
-            h_row_idx: h.symbolic().row_idx().to_vec(),
-            a_col_ptr: a.symbolic().col_ptr().to_vec(),
-            a_row_idx: a.symbolic().row_idx().to_vec(),
+            pattern: (Arc::clone(&problem.h), Arc::clone(&problem.a)),
             h_put: Vec::new(),
             a_put: Vec::new(),
             a_neg: Vec::new(),
@@ -461,20 +454,14 @@ impl RiccatiBackend {
         else {
             return MapScatter::OtherPattern;
         };
-        let (hr, ar) = (h.symbolic().row_idx(), a.symbolic().row_idx());
-        let known = map
-            .verified
-            .as_ref()
-            .is_some_and(|(vh, va)| Arc::ptr_eq(vh, &problem.h) && Arc::ptr_eq(va, &problem.a));
-        if !known {
-            let same = h.symbolic().col_ptr() == map.h_col_ptr.as_slice()
-                && a.symbolic().col_ptr() == map.a_col_ptr.as_slice()
-                && hr == map.h_row_idx.as_slice()
-                && ar == map.a_row_idx.as_slice();
+        let (ph, pa) = &map.pattern;
+        if !(Arc::ptr_eq(ph, &problem.h) && Arc::ptr_eq(pa, &problem.a)) {
+            let same = ph.check_same_structure(&problem.h, Block::H).is_ok()
+                && pa.check_same_structure(&problem.a, Block::A).is_ok();
             if !same {
                 return MapScatter::OtherPattern;
             }
-            map.verified = Some((Arc::clone(&problem.h), Arc::clone(&problem.a)));
+            map.pattern = (Arc::clone(&problem.h), Arc::clone(&problem.a));
         }
         let map = &*map;
         let (hv, av) = (h.val(), a.val());
