@@ -131,3 +131,17 @@ pub fn one_json(stdout: &str) -> serde_json::Value {
     );
     serde_json::from_str(trimmed).unwrap_or_else(|e| panic!("invalid JSON ({e}): {stdout}"))
 }
+
+/// Random convex problem with x*, y* chosen by design: H SPD with eigenvalues in [1, 10],
+/// A random m×n (full row rank with probability one), c = −Hx* − Aᵀy*, b = Ax*.
+pub fn designed(rng: &mut Rng, n: usize, m: usize) -> (Problem, Vec<f64>, Vec<f64>) {
+    let eigs: Vec<f64> = (0..n).map(|_| 1.0 + 4.5 * (rng.uniform() + 1.0)).collect();
+    let h = symmetric_with_eigs(rng, &eigs);
+    let a = rng.vec(m * n);
+    let (xs, ys) = (rng.vec(n), rng.vec(m));
+    let hm = DMatrix::from_row_slice(n, n, &h);
+    let am = DMatrix::from_row_slice(m, n, &a);
+    let c = -(&hm * DVector::from_column_slice(&xs)) - am.transpose() * DVector::from_column_slice(&ys);
+    let b = &am * DVector::from_column_slice(&xs);
+    (dense_problem(n, m, &h, &a, c.as_slice(), b.as_slice()), xs, ys)
+}
