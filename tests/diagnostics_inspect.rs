@@ -1,5 +1,5 @@
 //! `tangency inspect` and `tangency solve --sensitivity` through the command line, on the
-//! published fixtures (../shared/fixtures/worked-examples.md) and on rank-deficient problems;
+//! published fixtures (tests/fixtures/worked-examples.md) and on rank-deficient problems;
 //! plus the library's rank analysis against nalgebra's SVD.
 
 mod diagnostics_support;
@@ -64,7 +64,7 @@ struct Fixture {
     inertia: (usize, usize, usize),
 }
 
-/// The worked examples of ../shared/fixtures/worked-examples.md (values quoted there).
+/// The worked examples of tests/fixtures/worked-examples.md (values quoted there).
 fn fixtures() -> Vec<Fixture> {
     vec![
         // Hock & Schittkowski (1981), HS28.

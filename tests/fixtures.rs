@@ -1,4 +1,4 @@
-//! Published worked examples with known answers (../shared/fixtures/worked-examples.md),
+//! Published worked examples with known answers (tests/fixtures/worked-examples.md),
 //! through the library. The command-line versions are in tests/cli.rs.
 
 use tangency::{solve, Inertia, Options, Pivoting, ProblemBuilder, Triangle, Verdict};
@@ -20,7 +20,7 @@ struct Case {
 
 fn cases() -> Vec<Case> {
     vec![
-        // Hock & Schittkowski (1981), HS28 (values via ../shared/fixtures/worked-examples.md,
+        // Hock & Schittkowski (1981), HS28 (values via tests/fixtures/worked-examples.md,
         // quoted from memory there and re-derived exactly).
         Case {
             name: "HS28",

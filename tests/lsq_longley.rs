@@ -1,18 +1,13 @@
 //! NIST StRD "Longley" (Longley 1967; NIST Statistical Reference Datasets, linear
-//! regression, higher difficulty): certified values in ../shared/fixtures.
+//! regression, higher difficulty): certified values in tests/fixtures (sources named in
+//! tests/fixtures/README.md).
 
 use tangency::lsq::{Fit, FitMethod, FitOptions, LsqBuilder};
 
-/// Reads a fixture from `../shared/fixtures` beside the checkout (CI layout), or two levels
-/// up (worktrees under `wt/`).
+/// Reads a vendored fixture from `tests/fixtures`.
 fn fixture(name: &str) -> String {
-    let root = env!("CARGO_MANIFEST_DIR");
-    for base in ["/../shared/fixtures/", "/../../shared/fixtures/"] {
-        if let Ok(text) = std::fs::read_to_string(format!("{root}{base}{name}")) {
-            return text;
-        }
-    }
-    panic!("fixture {name} not found beside the checkout (../shared/fixtures)")
+    let path = format!("{}/tests/fixtures/{name}", env!("CARGO_MANIFEST_DIR"));
+    std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("fixture {path}: {e}"))
 }
 
 thread_local! {

@@ -1,5 +1,5 @@
 //! The Riccati recursion against the discrete algebraic Riccati equation solved by an
-//! independent general-purpose library: ../shared/fixtures/lqr-two-mass.json holds the
+//! independent general-purpose library: tests/fixtures/lqr-two-mass.json holds the
 //! stabilizing solution P computed with scipy.linalg.solve_discrete_are for a two-mass
 //! spring-damper chain of our own, and K = (R + BᵀPB)⁻¹BᵀPA.
 
@@ -7,9 +7,7 @@ use faer::Mat;
 use tangency::stagewise::{HorizonBuilder, RiccatiBackend};
 use tangency::{Method, Options, Plan, Verdict};
 
-const FIXTURE: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/../shared/fixtures/lqr-two-mass.json");
-/// The same file seen from a worktree one level deeper (/work/wt/issue-N).
-const FIXTURE_FROM_WORKTREE: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/../../shared/fixtures/lqr-two-mass.json");
+const FIXTURE: &str = include_str!("fixtures/lqr-two-mass.json");
 
 /// Minimal reader for the fixture: the value of `key` as a matrix (array of arrays).
 fn matrix(text: &str, key: &str) -> Mat<f64> {
@@ -55,16 +53,14 @@ struct Fixture {
 }
 
 fn fixture() -> Fixture {
-    let text = std::fs::read_to_string(FIXTURE)
-        .or_else(|_| std::fs::read_to_string(FIXTURE_FROM_WORKTREE))
-        .expect("fixture readable");
+    let text = FIXTURE;
     Fixture {
-        a: matrix(&text, "A"),
-        b: matrix(&text, "B"),
-        q: matrix(&text, "Q"),
-        r: matrix(&text, "R"),
-        p: matrix(&text, "P"),
-        k: matrix(&text, "K"),
+        a: matrix(text, "A"),
+        b: matrix(text, "B"),
+        q: matrix(text, "Q"),
+        r: matrix(text, "R"),
+        p: matrix(text, "P"),
+        k: matrix(text, "K"),
     }
 }
 

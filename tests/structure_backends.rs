@@ -44,22 +44,10 @@ struct Fixture {
     f: f64,
 }
 
-/// The worked examples of ../shared/fixtures/worked-examples.md (values quoted from memory
+/// The worked examples of tests/fixtures/worked-examples.md (values quoted from memory
 /// of the sources there and re-derived with exact arithmetic by the fixture's author).
 fn fixtures() -> Vec<Fixture> {
-    // The fixture file lives in shared/ beside the checkout (as in CI); a git worktree
-    // one level deeper finds it one level further up.
-    let text = std::fs::read_to_string(concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/../shared/fixtures/worked-examples.md"
-    ))
-    .or_else(|_| {
-        std::fs::read_to_string(concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/../../shared/fixtures/worked-examples.md"
-        ))
-    })
-    .expect("shared fixtures present");
+    let text = include_str!("fixtures/worked-examples.md");
     assert!(text.contains("HS48") && text.contains("Example 16.2"));
     vec![
         // Hock & Schittkowski (1981), HS28.
