@@ -71,6 +71,7 @@
 //! than in active-set methods: the start is pushed back into the interior by
 //! [`InteriorPointOptions::warm_floor`]. The equality rows must be linearly independent.
 
+pub mod demo;
 mod io;
 pub mod ipm;
 mod problem;
