@@ -317,6 +317,59 @@ pub enum Error {
         /// The last (at most 10) relative residuals in the method's norm, oldest first.
         history_tail: Vec<f64>,
     },
+    /// Invalid inequality or bound data ([`crate::inequality`]): names the block (`G`, `h`,
+    /// `lo`, `hi`) and, when it applies, the row and column (0-based). Recover by correcting
+    /// that entry.
+    #[error("inequality input, block {block}{}: {detail}", fit_position(*row, *col))]
+    InequalityInput {
+        /// `"G"`, `"h"`, `"lo"` or `"hi"`.
+        block: &'static str,
+        /// Row (0-based), when the problem is one entry or row.
+        row: Option<usize>,
+        /// Column (0-based), when the problem is one entry.
+        col: Option<usize>,
+        /// What is wrong.
+        detail: String,
+    },
+    /// No point satisfies `Ax = b`, `Gx ≤ h`, `lo ≤ x ≤ hi`: the certificate is a Farkas
+    /// vector (see [`crate::inequality::FarkasCertificate`] for the convention). Recover by
+    /// relaxing the constraints the certificate weighs most.
+    #[error("the constraints are infeasible: {detail}")]
+    InfeasibleInequalities {
+        /// The certificate of infeasibility.
+        certificate: Box<crate::inequality::FarkasCertificate>,
+        /// Explanation in words.
+        detail: String,
+    },
+    /// The objective has negative curvature on the directions allowed by `Ax = b` (detected
+    /// by the inertia of a KKT matrix): the inequality solver computes global minimizers of
+    /// convex problems only and refuses rather than return a local point.
+    #[error("the problem is not convex: {detail}")]
+    Nonconvex {
+        /// The inertia that showed it, when a factorization observed it.
+        inertia: Option<Inertia>,
+        /// Explanation in words.
+        detail: String,
+    },
+    /// The interior-point method stopped at its iteration limit (or stalled) before meeting
+    /// its tolerances (CLI exit code 4, status `not_converged`). Recover by raising the limit,
+    /// rescaling the data or loosening the tolerance.
+    #[error(
+        "the interior-point method did not converge: {iterations} iteration(s), relative primal residual \
+         {primal_residual:.2e}, relative dual residual {dual_residual:.2e}, complementarity {complementarity:.2e}; {detail}"
+    )]
+    InteriorPointNotConverged {
+        /// Iterations taken.
+        iterations: usize,
+        /// Relative primal residual reached.
+        primal_residual: f64,
+        /// Relative dual residual reached.
+        dual_residual: f64,
+        /// Average complementarity `sᵀz / count` reached.
+        complementarity: f64,
+        /// Why it stopped.
+        detail: String,
+    },
 }
 
 fn fit_position(row: Option<usize>, col: Option<usize>) -> String {
@@ -336,7 +389,10 @@ impl Error {
 
     /// True when an iterative method hit its iteration limit (CLI exit code 4).
     pub fn is_not_converged(&self) -> bool {
-        matches!(self, Error::NotConverged { .. })
+        matches!(
+            self,
+            Error::NotConverged { .. } | Error::InteriorPointNotConverged { .. }
+        )
     }
 
     /// True for well-formed problems without a trustworthy solution (CLI exit code 3).
@@ -349,6 +405,8 @@ impl Error {
                 | Error::Unbounded { .. }
                 | Error::FitContradictory { .. }
                 | Error::FitNonUnique { .. }
+                | Error::InfeasibleInequalities { .. }
+                | Error::Nonconvex { .. }
         )
     }
 
@@ -360,6 +418,9 @@ impl Error {
             Error::Unbounded { .. } => "unbounded",
             Error::FitNonUnique { .. } => "singular",
             Error::NotConverged { .. } => "not_converged",
+            Error::InfeasibleInequalities { .. } => "infeasible",
+            Error::Nonconvex { .. } => "nonconvex",
+            Error::InteriorPointNotConverged { .. } => "not_converged",
             _ => "invalid_input",
         }
     }

@@ -95,6 +95,7 @@ pub mod demo;
 pub mod diagnostics;
 pub mod error;
 pub mod generate;
+pub mod inequality;
 pub mod io;
 pub mod iterative;
 pub mod kkt;

@@ -192,7 +192,9 @@ fn main() -> ExitCode {
             schur_block,
             sensitivity,
         } => {
-            if method == "pcg" {
+            if let Some(code) = refuse_iterative_with_inequalities(&dir, &method, json) {
+                code
+            } else if method == "pcg" {
                 solve_pcg(&dir, tol, max_iter, out.as_deref(), json)
             } else if method == "minres" {
                 solve_iterative(&dir, tol, max_iter, &schur_block, out.as_deref(), json)
@@ -361,6 +363,12 @@ fn solve(
         memory_budget_bytes: limits.2,
         ..Default::default()
     };
+    // G.mtx, h.mtx, lo.mtx, hi.mtx present: the interior-point solver (issue 17).
+    match tangency::inequality::read_inequalities(dir, &problem) {
+        Ok(Some(q)) => return solve_inequalities(&q, &options, out, json),
+        Ok(None) => {}
+        Err(e) => return fail(e, sizes, None, None, None),
+    }
     let plan = match Plan::analyze(&problem, &options) {
         Ok(p) => p,
         Err(e) => return fail(e, sizes, None, None, None),
@@ -579,6 +587,70 @@ fn solve_pcg(dir: &std::path::Path, tol: f64, max_iter: usize, out: Option<&std:
                 println!("  curvature   a feasible direction with pᵀHp/‖p‖² = {k:.2e} was found: no unique minimizer")
             }
         }
+    }
+    ExitCode::SUCCESS
+}
+
+/// `--method minres|pcg` cannot handle inequalities: refuse instead of ignoring the files.
+fn refuse_iterative_with_inequalities(dir: &std::path::Path, method: &str, json: bool) -> Option<ExitCode> {
+    let has = tangency::inequality::INEQUALITY_FILES
+        .iter()
+        .any(|f| dir.join(f).exists());
+    if !(has && (method == "minres" || method == "pcg")) {
+        return None;
+    }
+    let err = Error::InvalidOption(format!(
+        "--method {method} solves equality-constrained problems only, but the directory holds inequality files \
+         ({}); use a direct method (auto, dense, sparse, schur, nullspace, riccati)",
+        tangency::inequality::INEQUALITY_FILES.join(", ")
+    ));
+    if json {
+        println!("{}", error_json(&err, None, Some(method), None));
+    } else {
+        print_error(&err);
+    }
+    Some(ExitCode::from(exit_code(&err)))
+}
+
+/// `solve` of a directory with inequality files: the interior-point method, its JSON (the
+/// keys of `tangency::inequality::report::solution_json`) and, with `--out`, `x.mtx`,
+/// `multipliers.mtx`, `inequality_multipliers.mtx` and `bound_multipliers.mtx`.
+fn solve_inequalities(
+    q: &tangency::inequality::InequalityProblem,
+    options: &Options,
+    out: Option<&std::path::Path>,
+    json: bool,
+) -> ExitCode {
+    use tangency::inequality::{report, InteriorPoint, InteriorPointOptions};
+    let fail = |err: Error| {
+        if json {
+            let mut o = error_json(&err, Some((q.n(), q.m())), Some("interior-point"), None);
+            report::add_error_evidence(&mut o, &err);
+            println!("{o}");
+        } else {
+            print_error(&err);
+        }
+        ExitCode::from(exit_code(&err))
+    };
+    let opts = InteriorPointOptions {
+        kkt: *options,
+        ..Default::default()
+    };
+    let solution = match InteriorPoint::new(q, &opts).and_then(|mut ipm| ipm.solve(q)) {
+        Ok(s) => s,
+        Err(e) => return fail(e),
+    };
+    if let Some(out) = out {
+        let written = write_pair(out, ("x.mtx", &solution.x), ("multipliers.mtx", &solution.y))
+            .and_then(|()| tangency::inequality::write_multipliers(out, &solution.z, &solution.w));
+        if let Err(e) = written {
+            return fail(e);
+        }
+    }
+    if json {
+        println!("{}", report::solution_json(q, &solution));
+    } else {
+        print!("{}", report::human(q, &solution));
     }
     ExitCode::SUCCESS
 }

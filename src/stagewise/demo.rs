@@ -263,5 +263,6 @@ pub fn run() -> Result<String> {
         median * 1e6,
         max * 1e6
     );
+    out.push_str(&crate::inequality::demo::run_limited(40, 30)?);
     Ok(out)
 }
