@@ -370,6 +370,26 @@ pub enum Error {
         /// Why it stopped.
         detail: String,
     },
+    /// A call of the distributed engine failed ([`crate::distributed::MumpsError`]: phase,
+    /// `INFOG(1)`, `INFOG(2)` and their meaning). Singular codes have status `singular`;
+    /// the others (memory, ordering, environment) `invalid_input`.
+    #[cfg(feature = "mpi")]
+    #[error("{0}")]
+    Mumps(crate::distributed::MumpsError),
+    /// A collective distributed operation failed on another MPI rank: every rank of the
+    /// communicator returns an error, with the status and exit code of the original one.
+    #[cfg(feature = "mpi")]
+    #[error("on MPI rank {rank}: {message}")]
+    OnOtherRank {
+        /// The rank where the error was raised.
+        rank: i32,
+        /// Its status word (as [`Error::status`]).
+        status: &'static str,
+        /// Its command-line exit code (2, 3 or 4).
+        exit_code: u8,
+        /// Its message.
+        message: String,
+    },
 }
 
 fn fit_position(row: Option<usize>, col: Option<usize>) -> String {
@@ -389,6 +409,10 @@ impl Error {
 
     /// True when an iterative method hit its iteration limit (CLI exit code 4).
     pub fn is_not_converged(&self) -> bool {
+        #[cfg(feature = "mpi")]
+        if let Some(code) = self.distributed_exit_code() {
+            return code == 4;
+        }
         matches!(
             self,
             Error::NotConverged { .. } | Error::InteriorPointNotConverged { .. }
@@ -397,6 +421,10 @@ impl Error {
 
     /// True for well-formed problems without a trustworthy solution (CLI exit code 3).
     pub fn is_no_solution(&self) -> bool {
+        #[cfg(feature = "mpi")]
+        if let Some(code) = self.distributed_exit_code() {
+            return code == 3;
+        }
         matches!(
             self,
             Error::Singular { .. }
@@ -412,6 +440,10 @@ impl Error {
 
     /// Short machine-readable status word used by the command line's JSON.
     pub fn status(&self) -> &'static str {
+        #[cfg(feature = "mpi")]
+        if let Some(status) = self.distributed_status() {
+            return status;
+        }
         match self {
             Error::Singular { .. } | Error::Inaccurate { .. } => "singular",
             Error::Infeasible { .. } | Error::FitContradictory { .. } => "infeasible",

@@ -76,6 +76,13 @@
 //! vectors of a length fixed by the problem (for example [`Problem::objective`]) document
 //! that they panic on a wrong length: that is a programming error, not a data error.
 //!
+//! ## Features
+//!
+//! * `mpi` (off by default): distributed KKT solves on MPI ranks through MUMPS
+//!   (the `distributed` module, `tangency solve --method distributed`).
+//!   Needs OpenMPI, MUMPS built on it, libclang and pkg-config (Debian: `openmpi-bin
+//!   libopenmpi-dev libmumps-dev libclang-dev pkg-config`). The default build has no MPI.
+//!
 //! ## Current state
 //!
 //! Implemented: dense LBLᵀ with equilibration, inertia, verdict, refinement; sparse LDLᵀ
@@ -93,6 +100,8 @@
 pub mod backend;
 pub mod demo;
 pub mod diagnostics;
+#[cfg(feature = "mpi")]
+pub mod distributed;
 pub mod error;
 pub mod generate;
 pub mod inequality;

@@ -94,6 +94,10 @@ pub enum MethodUsed {
     /// Projected conjugate gradients with a constraint preconditioner (iterative; inertia
     /// not observed), see [`crate::iterative::pcg()`].
     Pcg,
+    /// MUMPS's distributed symmetric-indefinite factorization on MPI ranks, see
+    /// [`crate::distributed`] (feature `mpi`).
+    #[cfg(feature = "mpi")]
+    Distributed,
 }
 
 impl MethodUsed {
@@ -107,6 +111,8 @@ impl MethodUsed {
             MethodUsed::SparseLdlt => "sparse",
             MethodUsed::Minres => "minres",
             MethodUsed::Pcg => "pcg",
+            #[cfg(feature = "mpi")]
+            MethodUsed::Distributed => "distributed",
         }
     }
 }

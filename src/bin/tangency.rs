@@ -192,6 +192,9 @@ fn main() -> ExitCode {
             schur_block,
             sensitivity,
         } => {
+            if method == "distributed" {
+                return solve_distributed(&dir, out.as_deref(), json);
+            }
             if let Some(code) = refuse_iterative_with_inequalities(&dir, &method, json) {
                 code
             } else if method == "pcg" {
@@ -427,6 +430,30 @@ fn solve(
         }
     }
     ExitCode::SUCCESS
+}
+
+/// `solve --method distributed`: MUMPS on MPI ranks (`mpirun -n P tangency solve DIR --method
+/// distributed`), see `tangency::distributed::cli`; without the `mpi` feature, invalid usage.
+fn solve_distributed(dir: &std::path::Path, out: Option<&std::path::Path>, json: bool) -> ExitCode {
+    #[cfg(feature = "mpi")]
+    {
+        ExitCode::from(tangency::distributed::cli::run_solve(dir, out, json))
+    }
+    #[cfg(not(feature = "mpi"))]
+    {
+        let _ = (dir, out);
+        let err = Error::InvalidOption(
+            "--method distributed needs a tangency built with the `mpi` feature \
+             (cargo build --release --features mpi), run under mpirun -n P"
+                .into(),
+        );
+        if json {
+            println!("{}", error_json(&err, None, Some("distributed"), None));
+        } else {
+            print_error(&err);
+        }
+        ExitCode::from(2)
+    }
 }
 
 /// Reports a failed iterative solve (error JSON with the iterations and residual tail of a
