@@ -35,7 +35,6 @@ use faer::{Accum, Mat, MatMut, Par};
 
 use crate::backend::{auto, KktBackend, SingularFindings};
 use crate::error::Result;
-use crate::kkt;
 use crate::problem::{Matrix, Problem};
 use crate::solution::{Inertia, MethodUsed};
 use crate::solver::Options;
@@ -60,10 +59,7 @@ pub enum SchurPrecision {
     Auto,
 }
 
-/// With single-precision factors the probe accepts once one refinement step reduced the
-/// backward error by at least this factor (refinement then converges linearly at that rate
-/// or better): `1e-3`.
-pub const PROBE_CONTRACTION: f64 = 1e-3;
+pub use crate::backend::probe::PROBE_CONTRACTION;
 
 /// Below this `n`, [`SchurPrecision::Auto`] factors in `f64`: the extra refinement steps
 /// of mixed precision cost more than the faster kernels save. Measured with
@@ -132,6 +128,8 @@ struct Factors<T> {
     l: Mat<T>,
     w: Mat<T>,
     ls: Mat<T>,
+    // Set by `factor` when the Cholesky of H met a pivot that was not positive.
+    h_failed_at: Option<usize>,
 }
 
 impl<T: Real> Factors<T> {
@@ -140,12 +138,14 @@ impl<T: Real> Factors<T> {
             l: Mat::zeros(0, 0),
             w: Mat::zeros(0, 0),
             ls: Mat::zeros(0, 0),
+            h_failed_at: None,
         }
     }
 
     fn factor(&mut self, problem: &Problem, params: &SchurParams) -> std::result::Result<(), String> {
         let (n, m) = (problem.n(), problem.m());
         let par = params.par;
+        self.h_failed_at = None;
         if self.l.nrows() != n || self.w.ncols() != m || self.ls.nrows() != m {
             self.l = Mat::zeros(n, n);
             self.w = Mat::zeros(n, m);
@@ -168,7 +168,10 @@ impl<T: Real> Factors<T> {
                 });
             }
         }
-        cholesky(self.l.as_mut(), params, "H")?;
+        cholesky(self.l.as_mut(), params, "H").map_err(|(reason, at)| {
+            self.h_failed_at = at;
+            reason
+        })?;
         match problem.constraints() {
             Matrix::Dense(a) => {
                 // W = Aᵀ by tiles, so that both sides are read and written in cache-sized runs.
@@ -202,7 +205,7 @@ impl<T: Real> Factors<T> {
             par,
         );
         cholesky(self.ls.as_mut(), params, "the Schur complement A H⁻¹ Aᵀ")
-            .map_err(|e| format!("{e}: A is (numerically) rank-deficient"))
+            .map_err(|(e, _)| format!("{e}: A is (numerically) rank-deficient"))
     }
 
     /// `[f; g] ← K⁻¹[f; g]` with these factors (in their precision), the working copies in
@@ -264,8 +267,29 @@ fn solve_scratch(n: usize, m: usize, nrhs: usize) -> StackReq {
     faer::linalg::temp_mat_scratch::<f64>(n, nrhs).and(faer::linalg::temp_mat_scratch::<f64>(m, nrhs))
 }
 
+/// Cholesky in `f64` of the leading `k×k` block of H: `Err(reason)` when it is not
+/// (numerically) positive definite.
+fn leading_block_cholesky(problem: &Problem, k: usize, params: &SchurParams) -> std::result::Result<(), String> {
+    let k = k.min(problem.n());
+    let mut l = Mat::<f64>::zeros(k, k);
+    problem.hessian().for_each(|i, j, v| {
+        if i >= j && i < k {
+            l[(i, j)] = v
+        }
+    });
+    cholesky(l.as_mut(), params, "the leading block of H").map_err(|(why, _)| why)
+}
+
+/// Why a Cholesky factorization failed, and at which pivot when a pivot was not positive
+/// (the leading block up to it is then not positive definite in this precision).
+type CholeskyFailure = (String, Option<usize>);
+
 /// Cholesky in place (lower), with the pivot check; `Err(reason)` on failure.
-fn cholesky<T: Real>(mut a: MatMut<'_, T>, params: &SchurParams, what: &str) -> std::result::Result<(), String> {
+fn cholesky<T: Real>(
+    mut a: MatMut<'_, T>,
+    params: &SchurParams,
+    what: &str,
+) -> std::result::Result<(), CholeskyFailure> {
     let dim = a.nrows();
     if dim == 0 {
         return Ok(());
@@ -273,9 +297,12 @@ fn cholesky<T: Real>(mut a: MatMut<'_, T>, params: &SchurParams, what: &str) -> 
     let diag = |a: &MatMut<'_, T>, i: usize| -> f64 { a[(i, i)].into() };
     let dmax = (0..dim).fold(0.0f64, |acc, i| acc.max(diag(&a, i)));
     if let Some(i) = (0..dim).find(|&i| diag(&a, i).partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater)) {
-        return Err(format!(
-            "{what} has a non-positive diagonal entry at {i} (value {:e})",
-            diag(&a, i)
+        return Err((
+            format!(
+                "{what} has a non-positive diagonal entry at {i} (value {:e})",
+                diag(&a, i)
+            ),
+            Some(i),
         ));
     }
     let mut buf = MemBuffer::new(llt::cholesky_in_place_scratch::<T>(dim, params.par, Default::default()));
@@ -287,9 +314,10 @@ fn cholesky<T: Real>(mut a: MatMut<'_, T>, params: &SchurParams, what: &str) -> 
         Default::default(),
     )
     .map_err(|e| match e {
-        llt::LltError::NonPositivePivot { index } => {
-            format!("{what} is not positive definite (Cholesky pivot {index} is not positive)")
-        }
+        llt::LltError::NonPositivePivot { index } => (
+            format!("{what} is not positive definite (Cholesky pivot {index} is not positive)"),
+            Some(index),
+        ),
     })?;
     let tol = params.pivot_factor * dim as f64 * T::EPS * dmax;
     if let Some(i) = (0..dim).find(|&i| {
@@ -297,9 +325,12 @@ fn cholesky<T: Real>(mut a: MatMut<'_, T>, params: &SchurParams, what: &str) -> 
         (d * d).partial_cmp(&tol) != Some(std::cmp::Ordering::Greater)
     }) {
         let d = diag(&a, i);
-        return Err(format!(
-            "{what} is numerically singular (Cholesky pivot {i}: {:.2e} ≤ {tol:.1e})",
-            d * d
+        return Err((
+            format!(
+                "{what} is numerically singular (Cholesky pivot {i}: {:.2e} ≤ {tol:.1e})",
+                d * d
+            ),
+            None,
         ));
     }
     Ok(())
@@ -372,7 +403,17 @@ impl Schur {
                     return Ok(());
                 }
                 Err(reason) => {
+                    // A pivot of H that was not positive in f32: if the leading block up to
+                    // it is not positive definite in f64 either, H is not, and the f64
+                    // factorization would fail the same way: refuse now, at the cost of
+                    // that block only (the early decision of the module docs).
+                    let failed_at = self.single.h_failed_at;
                     self.single = Factors::empty();
+                    if let Some(k) = failed_at {
+                        if let Err(why) = leading_block_cholesky(problem, k + 1, &self.params) {
+                            return Err(format!("{reason}; confirmed in double precision: {why}"));
+                        }
+                    }
                     self.notes.push(format!(
                         "single-precision Schur factors refused ({reason}); refactored in double precision"
                     ));
@@ -384,46 +425,22 @@ impl Schur {
         self.probe(problem)
     }
 
-    /// Solves `K z = K z₀` for a fixed `z₀`, refining up to three times on the original K.
+    /// Solves `K z = K z₀` for a fixed `z₀`, refining up to three times on the original K
+    /// (the shared probe of [`crate::backend::probe`]).
     fn probe(&self, problem: &Problem) -> std::result::Result<(), String> {
-        let dim = self.n + self.m;
-        if dim == 0 {
-            return Ok(());
-        }
-        let z0: Vec<f64> = (0..dim).map(|i| 1.0 + ((i * 7919) % 13) as f64 / 13.0).collect();
-        let zeros = vec![0.0; dim];
-        let mut rhs = vec![0.0; dim];
-        // rhs = K z0 = −(0 − K z0)
-        kkt::residual(problem, &z0, &zeros, &mut rhs);
-        rhs.iter_mut().for_each(|v| *v = -*v);
-        let norm_k = kkt::norm_inf(problem);
-        let mut z = vec![0.0; dim];
-        let mut r = rhs.clone();
-        let mut col = Mat::<f64>::zeros(dim, 1);
         let mut buf = MemBuffer::new(solve_scratch(self.n, self.m, 1));
-        let mut omega = f64::INFINITY;
-        for step in 0..4 {
-            let previous = omega;
-            col.col_as_slice_mut(0).copy_from_slice(&r);
-            self.solve_own(col.as_mut(), MemStack::new(&mut buf));
-            z.iter_mut().zip(col.col_as_slice(0)).for_each(|(zi, d)| *zi += d);
-            kkt::residual(problem, &z, &rhs, &mut r);
-            omega = crate::solver::normwise(&r, norm_k, &z, &rhs);
-            // Accept as soon as the probe meets the bar, or (single-precision factors) once a
-            // refinement step has contracted the backward error by 10³ or more: refinement
-            // converges, and the solves proper refine to full accuracy. A NaN (overflow in the
-            // factors) meets neither.
-            let contracted = self.mixed && step > 0 && omega <= PROBE_CONTRACTION * previous;
-            if omega <= self.params.probe_backward_error || contracted {
-                return Ok(());
-            }
-        }
-        Err(format!(
-            "a probe solve on K kept a backward error of {omega:.1e} after refinement \
-             (> {:.0e}): H or A H⁻¹ Aᵀ is too ill-conditioned for this method{}",
-            self.params.probe_backward_error,
-            if self.mixed { " in single precision" } else { "" }
-        ))
+        crate::backend::probe::run(problem, self.mixed, self.params.probe_backward_error, |col| {
+            self.solve_own(col, MemStack::new(&mut buf))
+        })
+        .map(|_| ())
+        .map_err(|omega| {
+            format!(
+                "a probe solve on K kept a backward error of {omega:.1e} after refinement \
+                 (> {:.0e}): H or A H⁻¹ Aᵀ is too ill-conditioned for this method{}",
+                self.params.probe_backward_error,
+                if self.mixed { " in single precision" } else { "" }
+            )
+        })
     }
 
     fn solve_own(&self, rhs: MatMut<'_, f64>, stack: &mut MemStack) {
