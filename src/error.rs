@@ -73,6 +73,21 @@ pub enum Error {
         /// The value found (NaN or ±inf).
         value: f64,
     },
+    /// Duplicate sparse entries at one position are each finite but their sum is not
+    /// (e.g. two entries of 1.5e308). Positions are 0-based.
+    #[error(
+        "block {block}: the duplicate entries at row {row}, column {col} (0-based) sum to {value}, beyond double range"
+    )]
+    DuplicateSumOverflow {
+        /// The offending block.
+        block: Block,
+        /// Row (0-based).
+        row: usize,
+        /// Column (0-based).
+        col: usize,
+        /// The sum (±inf).
+        value: f64,
+    },
     /// A full `H` differs from its transpose by more than the documented tolerance.
     #[error(
         "H is not symmetric: H[{row},{col}] = {upper:e} but H[{col},{row}] = {lower:e} \
@@ -196,6 +211,14 @@ pub enum Error {
         steps: usize,
         /// Acceptance level (`Options::accept_backward_error`).
         limit: f64,
+    },
+    /// The solution (or the objective) lies beyond double range: a power-of-two scaling of
+    /// the right-hand side was tried and still overflows (CLI exit 3, status `overflow`).
+    /// Recover by rescaling the problem's units.
+    #[error("the solution is not representable in double precision: {detail}")]
+    Overflow {
+        /// What overflowed, with the figures.
+        detail: String,
     },
     /// Invalid data for one stage of a horizon (stage-wise) problem; `stage` is `N` for the
     /// terminal blocks and the initial state. Recover by correcting that block.
@@ -431,6 +454,7 @@ impl Error {
                 | Error::Inaccurate { .. }
                 | Error::Infeasible { .. }
                 | Error::Unbounded { .. }
+                | Error::Overflow { .. }
                 | Error::FitContradictory { .. }
                 | Error::FitNonUnique { .. }
                 | Error::InfeasibleInequalities { .. }
@@ -453,6 +477,7 @@ impl Error {
             Error::InfeasibleInequalities { .. } => "infeasible",
             Error::Nonconvex { .. } => "nonconvex",
             Error::InteriorPointNotConverged { .. } => "not_converged",
+            Error::Overflow { .. } => "overflow",
             _ => "invalid_input",
         }
     }
@@ -464,6 +489,7 @@ impl Error {
             | Error::NonFinite { block, .. }
             | Error::IndexOutOfRange { block, .. }
             | Error::WrongLength { block, .. } => Some(*block),
+            Error::DuplicateSumOverflow { block, .. } => Some(*block),
             Error::NotSymmetric { .. } | Error::WrongTriangle { .. } => Some(Block::H),
             Error::NotStageStructured { block, .. } => Some(*block),
             Error::InFile { source, .. } => source.block(),

@@ -109,6 +109,7 @@ pub mod io;
 pub mod iterative;
 pub mod kkt;
 pub mod lsq;
+pub mod memory;
 pub mod problem;
 pub mod report;
 pub mod solution;

@@ -207,6 +207,17 @@ impl Plan {
             ),
             Method::Auto => auto::choose(problem, options),
         };
+        // ---- issue 13: dense methods are sized before anything is allocated; auto takes
+        // the sparse factorization instead, a requested method is refused with the figures.
+        let (method, reason) = match auto::check_memory(method, problem.n(), problem.m()) {
+            Ok(()) => (method, reason),
+            Err(e) if options.method == Method::Auto => {
+                notes.push(format!("auto did not use the {method} method: {e}"));
+                (MethodUsed::SparseLdlt, format!("{method} would not fit in memory"))
+            }
+            Err(e) => return Err(e),
+        };
+        // ---- end issue 13
         let mut sparse = match method {
             MethodUsed::SparseLdlt => Some(std::sync::Arc::new(SparseAnalysis::new(problem, &options.sparse)?)),
             _ => None,
@@ -496,6 +507,16 @@ impl Factorization {
         check_vector(Block::C, c, n)?;
         check_vector(Block::B, b, m)?;
         ws.check(n, m)?;
+        // ---- issue 13 (extreme scaling): a right-hand side far from unit size is solved
+        // scaled by a power of two (exact), and the answer scaled back; a non-finite answer
+        // is refused below. Allocates only in that extreme case.
+        if let Some(s) = rhs_power_of_two_scale(c, b) {
+            let cs: Vec<f64> = c.iter().map(|v| v * s).collect();
+            let bs: Vec<f64> = b.iter().map(|v| v * s).collect();
+            self.solve_into(&cs, &bs, ws, out)?;
+            return unscale_solution(out, s);
+        }
+        // ---- end issue 13
         // A refactorization may have changed the backend (a fallback, the rank analysis) and
         // with it the scratch a solve needs: grow the buffer then (only then does this allocate).
         ws.reserve(self.backend.solve_scratch(1));
@@ -546,6 +567,11 @@ impl Factorization {
                 limit: self.plan.options.accept_backward_error,
             });
         }
+        // ---- issue 13: a non-finite point is never returned as solved.
+        if let Some(k) = z.iter().position(|v| !v.is_finite()) {
+            return Err(non_finite_solution(k, n, z[k]));
+        }
+        // ---- end issue 13
         out.x.resize(n, 0.0);
         out.y.resize(m, 0.0);
         out.x.copy_from_slice(&z[..n]);
@@ -659,6 +685,69 @@ impl Factorization {
     }
 }
 
+// ---- issue 13 (extreme scaling) helpers for `solve_into`.
+
+/// Right-hand sides whose largest entry lies outside `[2⁻⁴⁰⁰, 2⁴⁰⁰]` are solved scaled to
+/// unit size: beyond that, products with K and the refinement residuals may overflow or
+/// lose digits to underflow (common practice: scale by a power of two, which is exact).
+const RHS_SAFE_EXPONENT: i32 = 400;
+
+/// The power of two `s` that brings `max(|c|, |b|)` near 1, when it lies outside the safe
+/// range; `None` otherwise (and for a zero right-hand side).
+fn rhs_power_of_two_scale(c: &[f64], b: &[f64]) -> Option<f64> {
+    let mx = c.iter().chain(b).fold(0.0f64, |a, v| a.max(v.abs()));
+    if mx == 0.0 || !mx.is_finite() {
+        return None;
+    }
+    let e = mx.log2().round() as i32;
+    if e.abs() <= RHS_SAFE_EXPONENT {
+        return None;
+    }
+    // 2^(−e), kept within the normal range of f64 (|e| ≤ 1020).
+    Some(2f64.powi(-e.clamp(-1020, 1020)))
+}
+
+/// Scales a solution of the system with right-hand side `s·rhs` back by `1/s`: `x`, `y`
+/// and the residuals by `1/s`, the objective by `1/s²`. Refuses an unrepresentable result.
+fn unscale_solution(out: &mut Solution, s: f64) -> Result<()> {
+    let inv = 1.0 / s;
+    for v in out.x.iter_mut().chain(out.y.iter_mut()) {
+        *v *= inv;
+    }
+    out.primal_residual *= inv;
+    out.dual_residual *= inv;
+    out.objective = out.objective * inv * inv;
+    let n = out.x.len();
+    if let Some(k) = out.x.iter().chain(&out.y).position(|v| !v.is_finite()) {
+        let z = out.x.iter().chain(&out.y).nth(k).copied().unwrap_or(f64::NAN);
+        return Err(non_finite_solution(k, n, z));
+    }
+    if !out.objective.is_finite() {
+        return Err(Error::Overflow {
+            detail: format!(
+                "the point is finite (largest |x| = {:.3e}) but the objective ½xᵀHx + cᵀx exceeds double range",
+                out.x.iter().fold(0.0f64, |a, v| a.max(v.abs()))
+            ),
+        });
+    }
+    out.notes.push(format!(
+        "the right-hand side was scaled by 2^{} (exact) for the solve and the answer scaled back",
+        s.log2().round() as i64
+    ));
+    Ok(())
+}
+
+fn non_finite_solution(k: usize, n: usize, v: f64) -> Error {
+    let (what, idx) = if k < n { ("x", k) } else { ("y (multiplier)", k - n) };
+    Error::Overflow {
+        detail: format!(
+            "entry {idx} (0-based) of {what} came out as {v} after scaling the right-hand side to unit size: \
+             the solution exceeds double range (about 1.8e308); rescale the problem's units"
+        ),
+    }
+}
+// ---- end issue 13
+
 /// Reusable scratch memory for [`Factorization::solve_into`]: the backend's solve scratch
 /// (faer `MemBuffer`) plus a few vectors of length `n + m` and one of length `n`.
 pub struct Workspace {
@@ -730,6 +819,10 @@ impl Workspace {
 pub fn normwise(r: &[f64], norm_k: f64, z: &[f64], rhs: &[f64]) -> f64 {
     let denom = norm_k * inf_norm(z) + inf_norm(rhs);
     let num = inf_norm(r);
+    // issue 13: the backward error of a non-finite point or residual is never 0.
+    if !num.is_finite() || !denom.is_finite() {
+        return f64::INFINITY;
+    }
     if num == 0.0 {
         0.0
     } else if denom == 0.0 || !num.is_finite() {

@@ -309,7 +309,8 @@ fn bad_input_exits_2_and_names_the_place() {
                 "H.mtx",
                 "%%MatrixMarket matrix coordinate real general\n2 2 1\n3 1 1\n".into(),
             )],
-            vec!["H.mtx", "block H", "row 2, column 0"],
+            // File positions are 1-based, as the file writes them, and the message says so.
+            vec!["H.mtx", "block H", "line 3", "(3, 1)", "counted from 1"],
         ),
         (
             "A columns",
@@ -359,7 +360,7 @@ fn bad_input_exits_2_and_names_the_place() {
                     "%%MatrixMarket matrix coordinate real general\n1 2 1\n1 2 1e999\n".into(),
                 ),
             ],
-            vec!["A.mtx", "non-finite", "row 0, column 1"],
+            vec!["A.mtx", "block A", "line 3", "1e999", "overflows"],
         ),
     ];
     for (name, files, needles) in cases {

@@ -193,3 +193,46 @@ pub fn make_backend(method: MethodUsed, problem: &Problem, options: &Options) ->
         _ => Box::new(DenseLblt::new(problem, options.dense)),
     }
 }
+
+/// Bytes a dense method needs at least for sizes `n`, `m`, counted from its dense arrays
+/// (8 bytes per entry): dense LBLᵀ holds K (N² with N = n + m) and its factors (N²); Schur
+/// holds the Cholesky factor of H (n²), `H⁻¹Aᵀ` (nm), the Schur complement (m²) and a dense
+/// copy of H (n²); null-space holds dense `A` (mn), the QR of `Aᵀ` (nm plus n² for the
+/// basis), `Z` and `HZ` (2n(n − m)), the reduced Hessian (2(n − m)²) and dense H (n²).
+/// `None` for the other methods (their memory is estimated by their own analysis).
+///
+/// ```
+/// use tangency::{backend::auto::dense_bytes, MethodUsed};
+/// assert_eq!(dense_bytes(MethodUsed::DenseLblt, 2, 1), Some(8 * 2 * 9));
+/// assert!(dense_bytes(MethodUsed::SparseLdlt, 2, 1).is_none());
+/// ```
+pub fn dense_bytes(method: MethodUsed, n: usize, m: usize) -> Option<u64> {
+    let (n, m) = (n as u128, m as u128);
+    let k = n.saturating_sub(m);
+    let entries = match method {
+        MethodUsed::DenseLblt => 2 * (n + m) * (n + m),
+        MethodUsed::Schur => 2 * n * n + n * m + m * m,
+        MethodUsed::NullSpace => 2 * n * m + 2 * n * n + 2 * n * k + 2 * k * k,
+        _ => return None,
+    };
+    Some(u64::try_from(entries.saturating_mul(8)).unwrap_or(u64::MAX))
+}
+
+/// Refuses a dense method whose arrays ([`dense_bytes`]) exceed the memory the process can
+/// still allocate ([`crate::memory::available_bytes`]), with [`crate::Error::Resources`]
+/// naming the method, the sizes and the figures. Called before anything is allocated.
+pub fn check_memory(method: MethodUsed, n: usize, m: usize) -> crate::Result<()> {
+    match dense_bytes(method, n, m) {
+        Some(need) => crate::memory::check(
+            need,
+            &format!("the {method} method on n = {n}, m = {m} (dense arrays of K or its blocks)"),
+        )
+        .map_err(|e| match e {
+            crate::Error::Resources { detail } => crate::Error::Resources {
+                detail: format!("{detail}; use --method sparse (or auto) for a problem of this size"),
+            },
+            other => other,
+        }),
+        None => Ok(()),
+    }
+}

@@ -9,8 +9,6 @@
 use std::fmt;
 use std::path::Path;
 
-use nalgebra_sparse::io::load_coo_from_matrix_market_str;
-
 use super::condition::{self, ConditionEstimate};
 use crate::diagnostics::rank::{RankAnalysis, DEFAULT_CONSISTENCY_TOLERANCE};
 use crate::error::{Error, Result};
@@ -46,7 +44,9 @@ pub struct ConstraintRank {
     /// 0-based rows of A that depend (to the tolerance) on the other rows: removing them
     /// leaves `rank` independent rows spanning the same row space. Sorted.
     pub dependent_rows: Vec<usize>,
-    /// Absolute tolerance on the diagonal of R used to decide the rank.
+    /// Absolute tolerance on the diagonal of R used to decide the rank; 0 when a
+    /// nonsingular K proved full row rank, NaN when the rank was not analysed (a singular K
+    /// whose A is too large for the dense analysis; `rank` then only bounds it from above).
     pub tolerance: f64,
     /// Whether `b` agrees on the dependent rows (the constraints are redundant rather than
     /// contradictory); `true` when there are none.
@@ -107,7 +107,7 @@ pub struct Inspection {
 pub fn inspect(problem: &Problem, options: &Options) -> Result<Inspection> {
     let (n, m) = (problem.n(), problem.m());
     let f = factor_for_inspection(problem, options)?;
-    let constraints = constraint_rank(problem.constraints(), problem.rhs(), options);
+    let constraints = constraint_rank(problem, &f, options);
     let cond = condition::estimate(&f);
     let inertia = f.inertia();
     let regularized_pivots = f.backend().regularized_pivots();
@@ -163,19 +163,18 @@ pub fn inspect_dir(dir: impl AsRef<Path>, options: &Options) -> Result<Inspectio
 /// Symmetry of the matrix in a Matrix Market file, as written. A file declared
 /// `symmetric` stores one triangle and is symmetric by declaration (asymmetry 0).
 pub fn file_symmetry(path: &Path) -> Result<SymmetryCheck> {
-    let text = std::fs::read_to_string(path).map_err(|source| Error::Io {
+    let loaded = crate::io::read_matrix(path, "H")?.ok_or_else(|| Error::Io {
         path: path.to_path_buf(),
-        source,
+        source: std::io::Error::new(std::io::ErrorKind::NotFound, "H.mtx is required in a problem directory"),
     })?;
-    let header = text.lines().next().unwrap_or("").to_ascii_lowercase();
-    let declared = header.split_whitespace().last().unwrap_or("general").to_string();
-    let coo = load_coo_from_matrix_market_str::<f64>(&text).map_err(|e| Error::Parse {
-        path: path.to_path_buf(),
-        message: format!("{:?}: {}", e.kind(), e.message()),
-    })?;
+    let declared = match loaded.symmetry {
+        crate::io::Symmetry::General => "general",
+        crate::io::Symmetry::Symmetric => "symmetric",
+        crate::io::Symmetry::SkewSymmetric => "skew-symmetric",
+    };
     let mut entries = std::collections::HashMap::new();
-    for (i, j, v) in coo.triplet_iter() {
-        *entries.entry((i, j)).or_insert(0.0) += *v;
+    for (i, j, v) in loaded.full_triplets() {
+        *entries.entry((i, j)).or_insert(0.0) += v;
     }
     let scale = entries.values().fold(0.0f64, |a: f64, v: &f64| a.max(v.abs()));
     let mut worst = 0.0f64;
@@ -195,13 +194,29 @@ pub fn file_symmetry(path: &Path) -> Result<SymmetryCheck> {
     })
 }
 
+/// Largest `|H[i,j] − H[j,i]|` relative to `max|H|`, from the stored entries (no dense
+/// copy: a sparse H is compared entry by entry with its mirror).
 fn stored_symmetry(h: &Matrix) -> SymmetryCheck {
-    let d = h.to_dense();
     let scale = h.max_abs();
     let mut worst = 0.0f64;
-    for j in 0..d.ncols() {
-        for i in 0..j {
-            worst = worst.max((d[(i, j)] - d[(j, i)]).abs());
+    match h {
+        Matrix::Dense(d) => {
+            for j in 0..d.ncols() {
+                for i in 0..j {
+                    worst = worst.max((d[(i, j)] - d[(j, i)]).abs());
+                }
+            }
+        }
+        _ => {
+            let mut entries = std::collections::HashMap::new();
+            h.for_each(|i, j, v| {
+                *entries.entry((i, j)).or_insert(0.0) += v;
+            });
+            for (&(i, j), &v) in &entries {
+                if i != j {
+                    worst = worst.max((v - entries.get(&(j, i)).copied().unwrap_or(0.0)).abs());
+                }
+            }
         }
     }
     SymmetryCheck {
@@ -220,7 +235,12 @@ fn factor_for_inspection(problem: &Problem, options: &Options) -> Result<Factori
                 method: Method::Dense,
                 ..*options
             };
-            Plan::analyze(problem, &dense)?.factor(problem)
+            // The dense retry only when it fits in memory; otherwise the first finding stands.
+            match Plan::analyze(problem, &dense) {
+                Ok(plan) => plan.factor(problem),
+                Err(Error::Resources { .. }) => Err(e),
+                Err(other) => Err(other),
+            }
         }
         Err(e) => Err(e),
     }
@@ -255,10 +275,36 @@ fn list(v: &[usize]) -> String {
     s.join(", ")
 }
 
-/// Rank of A, its dependent rows and the consistency of `b`, from the shared rank analysis
-/// ([`crate::diagnostics::rank`]: column-pivoted QR of `Aᵀ`, the tolerances documented
-/// there). Dense work `O(n m min(n, m))`: fine for inspection of moderate sizes.
-fn constraint_rank(a: &Matrix, b: &[f64], options: &Options) -> ConstraintRank {
+/// Rank of A, its dependent rows and the consistency of `b`.
+///
+/// A nonsingular K (inertia observed, no zero pivot) implies that A has full row rank, so
+/// no further work is done. Otherwise the shared dense rank analysis
+/// ([`crate::diagnostics::rank`]: column-pivoted QR of the equilibrated `Aᵀ`, tolerances
+/// documented there) runs when its dense copy of A fits in memory (work
+/// `O(n m min(n, m))`); a larger singular case reports the rank as unknown. This is the one
+/// place to switch to a sparse singular diagnosis once the sparse backend offers one.
+fn constraint_rank(problem: &Problem, f: &Factorization, options: &Options) -> ConstraintRank {
+    let (n, m) = (problem.n(), problem.m());
+    if f.inertia().is_some_and(|i| i.zero == 0) || m == 0 {
+        return ConstraintRank {
+            rank: m,
+            dependent_rows: Vec::new(),
+            tolerance: 0.0,
+            consistent: true,
+        };
+    }
+    let dense_bytes = 8 * 3 * (n as u64).saturating_mul(m as u64);
+    let affordable = crate::memory::check(dense_bytes, "the dense rank analysis of A").is_ok()
+        && n.saturating_mul(m) <= INSPECT_DENSE_RANK_MAX_ENTRIES;
+    if !affordable {
+        return ConstraintRank {
+            rank: m,
+            dependent_rows: Vec::new(),
+            tolerance: f64::NAN,
+            consistent: true,
+        };
+    }
+    let a = problem.constraints();
     let analysis = RankAnalysis::new(a.to_dense().as_ref(), options.null_space.rank_tolerance_factor);
     let mut dependent_rows = analysis.dependent_rows();
     dependent_rows.sort_unstable();
@@ -266,9 +312,13 @@ fn constraint_rank(a: &Matrix, b: &[f64], options: &Options) -> ConstraintRank {
         rank: analysis.rank(),
         dependent_rows,
         tolerance: analysis.threshold(),
-        consistent: analysis.check_rhs(b, DEFAULT_CONSISTENCY_TOLERANCE).is_ok(),
+        consistent: analysis.check_rhs(problem.rhs(), DEFAULT_CONSISTENCY_TOLERANCE).is_ok(),
     }
 }
+
+/// Largest `n·m` for which `inspect` runs the dense rank analysis of a singular K's A
+/// (4·10⁷ entries, 320 MB dense; beyond it the rank is reported unknown).
+pub const INSPECT_DENSE_RANK_MAX_ENTRIES: usize = 40_000_000;
 
 impl Inspection {
     /// The JSON object of `tangency inspect --json`.
@@ -339,7 +389,12 @@ impl fmt::Display for Inspection {
             if self.symmetry.passed() { "ok" } else { "FAILED" }
         )?;
         let c = &self.constraints;
-        if c.dependent_rows.is_empty() {
+        if c.tolerance.is_nan() {
+            writeln!(
+                f,
+                "  constraints   rank not analysed: K is singular and A is too large for the dense rank analysis"
+            )?;
+        } else if c.dependent_rows.is_empty() {
             writeln!(f, "  constraints   rank {} of {m}: independent", c.rank)?;
         } else {
             writeln!(

@@ -17,7 +17,18 @@
 //!
 //! **Consistency.** The same combination must hold for `b`: the gap
 //! `b_dep − Σᵢ C[i,k]·b_i` is accepted when `|gap| ≤ tol · (|b_dep| + Σᵢ |C[i,k]|·|b_i|)`
-//! plus an absolute floor `tol · ‖b‖∞`, default `tol = 1e-9` ([`DEFAULT_CONSISTENCY_TOLERANCE`]).
+//! plus an absolute floor `tol · max_i |w_i b_i| / w_dep` (`w` the row weights below), default
+//! `tol = 1e-9` ([`DEFAULT_CONSISTENCY_TOLERANCE`]).
+//!
+//! **Scaling.** Every decision is made on the row-equilibrated `A`: row `i` is weighted by
+//! `w_i = 2^(−round(log₂‖row_i‖₂)) · (1 − ½·i/m)` (a power of two, exact, times a mild
+//! preference for earlier rows), so the rank, the dependent rows and the consistency test do
+//! not change when a row of `A` and its `b` entry are multiplied by any factor; the
+//! tolerance `τ` above is applied to the `R` of the weighted `Aᵀ` (whose columns have norm
+//! in `[0.35, 1.4]`). When rows tie (duplicates, exact sums), the pivoting keeps the rows
+//! written first and drops the later ones; this is a preference, not a rule: pivoting still
+//! keeps the best-conditioned set when rows are near-dependent. Column scaling of `A` is not
+//! equilibrated here (it would make the null-space basis non-orthogonal).
 //!
 //! ```
 //! use tangency::diagnostics::rank::RankAnalysis;
@@ -120,6 +131,7 @@ pub struct RankAnalysis {
     q_coeff: Mat<f64>,
     r: Mat<f64>,
     comb: Mat<f64>,
+    weights: Vec<f64>,
 }
 
 impl RankAnalysis {
@@ -139,19 +151,32 @@ impl RankAnalysis {
                 q_coeff: Mat::zeros(1, 0),
                 r: Mat::zeros(0, m),
                 comb: Mat::zeros(0, m),
+                weights: vec![1.0; m],
             };
+        }
+        // Row equilibration (columns of Aᵀ): the rank decision is made on D·A with unit-size
+        // rows, so it does not change when the user scales a row by any factor. Each weight
+        // is a power of two (exact) times a mild preference 1 − ½·i/m that makes the pivoting
+        // keep earlier rows when rows tie (duplicates, sums): later dependent rows are dropped.
+        let weights = row_weights(a);
+        let mut at = at;
+        for (i, w) in weights.iter().enumerate() {
+            at.col_mut(i).iter_mut().for_each(|v| *v *= w);
         }
         let qr = at.col_piv_qr();
         let (fwd, _) = qr.P().arrays();
         let order: Vec<usize> = fwd.to_vec();
         let size = m.min(n);
-        let r = qr.R().get(..size, ..).to_owned();
-        let r00 = r[(0, 0)].abs();
+        let scaled_r = qr.R().get(..size, ..).to_owned();
+        let r00 = scaled_r[(0, 0)].abs();
         let threshold = factor * (m.max(n) as f64) * f64::EPSILON * r00;
         let mut rank = 0;
-        while rank < size && r[(rank, rank)].abs() > threshold {
+        while rank < size && scaled_r[(rank, rank)].abs() > threshold {
             rank += 1;
         }
+        // R of the unscaled Aᵀ P: Aᵀ = (Aᵀ D) D⁻¹, so column k of R is divided by the
+        // weight of row order[k].
+        let r = Mat::from_fn(size, m, |i, k| scaled_r[(i, k)] / weights[order[k]]);
         // C = R11⁻¹ R12: dependent rows in terms of independent ones.
         let mut comb = r.get(..rank, rank..).to_owned();
         if rank > 0 && comb.ncols() > 0 {
@@ -167,6 +192,7 @@ impl RankAnalysis {
             q_coeff: qr.Q_coeff().to_owned(),
             r,
             comb,
+            weights,
         }
     }
 
@@ -180,7 +206,8 @@ impl RankAnalysis {
         (self.m, self.n)
     }
 
-    /// The rank threshold `τ` used on `|R_kk|`.
+    /// The rank threshold `τ` used on `|R_kk|` of the row-equilibrated `A` (every row
+    /// scaled to 2-norm in `[½, 1]`, see the [module docs](self)).
     pub fn threshold(&self) -> f64 {
         self.threshold
     }
@@ -211,9 +238,11 @@ impl RankAnalysis {
         (0..self.m - self.rank)
             .map(|k| {
                 let col = self.comb.col(k);
-                let big = col.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+                // Negligible terms are judged on the equilibrated rows (coefficient / weight).
+                let w = |i: usize| col[i].abs() / self.weights[self.order[i]];
+                let big = (0..self.rank).fold(0.0f64, |a, i| a.max(w(i)));
                 let mut terms: Vec<(usize, f64)> = (0..self.rank)
-                    .filter(|&i| col[i].abs() > 1e-12 * big)
+                    .filter(|&i| w(i) > 1e-12 * big)
                     .map(|i| (self.order[i], col[i]))
                     .collect();
                 terms.sort_by_key(|t| t.0);
@@ -228,9 +257,15 @@ impl RankAnalysis {
     /// Checks `b` against every dependency (see the [module docs](self) for the test);
     /// `Err(Error::Infeasible)` naming every contradiction, largest gap first.
     pub fn check_rhs(&self, b: &[f64], tol: f64) -> Result<Vec<RhsCheck>, Error> {
-        let bmax = b.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+        // The absolute floor is taken on the row-equilibrated b (w_i·b_i) and brought to the
+        // dependent row's units, so that it too is invariant under row scaling.
+        let wbmax = b
+            .iter()
+            .zip(&self.weights)
+            .fold(0.0f64, |a, (v, w)| a.max((v * w).abs()));
         let mut checks = Vec::new();
         for (k, dep) in self.dependencies().into_iter().enumerate() {
+            let bmax = wbmax / self.weights[dep.row];
             let col = self.comb.col(k);
             let mut combo = 0.0;
             let mut scale = b[dep.row].abs();
@@ -331,6 +366,25 @@ impl RankAnalysis {
     }
 }
 
+/// Weight of each row of `A` in the rank decision: `2^(−round(log₂‖row‖₂))` (exact, brings
+/// the row to norm in `[0.7, 1.4]`) times `1 − ½·i/m` (the preference for earlier rows);
+/// 1 for a zero row.
+fn row_weights(a: MatRef<'_, f64>) -> Vec<f64> {
+    let m = a.nrows();
+    (0..m)
+        .map(|i| {
+            let row: Vec<f64> = a.row(i).iter().copied().collect();
+            let norm = crate::problem::norm2(&row);
+            let unit = if norm > 0.0 && norm.is_finite() {
+                2f64.powi(-(norm.log2().round() as i32).clamp(-1020, 1020))
+            } else {
+                1.0
+            };
+            unit * (1.0 - 0.5 * i as f64 / m as f64)
+        })
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -365,6 +419,47 @@ mod tests {
             }
             other => panic!("{other:?}"),
         }
+    }
+
+    /// Rows scaled from 1e-100 to 1e100 have the same rank and dependencies as unscaled
+    /// (known by construction: row 3 = row 0 + row 2 before scaling).
+    #[test]
+    fn rank_is_invariant_under_row_scaling() {
+        let a = faer::mat![
+            [1.0, 2.0, 0.0, 1.0],
+            [0.0, 1.0, 3.0, 0.0],
+            [2.0, 0.0, 1.0, 1.0],
+            [3.0, 2.0, 1.0, 2.0],
+        ];
+        let s = [1e-100, 1e100, 1e-50, 1e60];
+        let scaled = Mat::from_fn(4, 4, |i, j| a[(i, j)] * s[i]);
+        for (mat, name) in [(a.as_ref(), "plain"), (scaled.as_ref(), "scaled")] {
+            let r = RankAnalysis::new(mat, 1.0);
+            assert_eq!(r.rank(), 3, "{name}");
+            assert_eq!(r.dependent_rows(), vec![3], "{name}: the last row is the one dropped");
+            let d = &r.dependencies()[0];
+            for j in 0..4 {
+                let v: f64 = d.terms.iter().map(|(i, c)| c * mat[(*i, j)]).sum();
+                assert!(
+                    (v - mat[(3, j)]).abs() <= 1e-12 * mat[(3, j)].abs().max(1e-300),
+                    "{name}: {d}"
+                );
+            }
+            let b: Vec<f64> = (0..4).map(|i| [1.0, 1.0, 1.0, 2.0][i] * s[i]).collect();
+            let b = if name == "plain" { vec![1.0, 1.0, 1.0, 2.0] } else { b };
+            assert!(r.check_rhs(&b, 1e-9).is_ok(), "{name}");
+        }
+    }
+
+    /// Of two equal rows the first one written is kept; a zero row is dependent.
+    #[test]
+    fn keeps_the_first_of_equal_rows() {
+        let a = faer::mat![[0.0, 0.0], [1.0, 1.0], [1.0, 1.0]];
+        let r = RankAnalysis::new(a.as_ref(), 1.0);
+        assert_eq!(r.rank(), 1);
+        let mut dep = r.dependent_rows();
+        dep.sort_unstable();
+        assert_eq!(dep, vec![0, 2]);
     }
 
     #[test]

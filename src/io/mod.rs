@@ -1,5 +1,7 @@
-//! Problem directories in Matrix Market format (the NIST exchange format), read through
-//! nalgebra-sparse's parser.
+//! Problem directories in Matrix Market format (the NIST exchange format), read by the
+//! streaming reader of this module (see its checks under `mtx`: regular files only, sizes
+//! checked against the file's length and the memory available before allocating, exact
+//! tokens per entry, positions in messages 1-based as the file writes them).
 //!
 //! A problem directory holds:
 //!
@@ -16,121 +18,58 @@
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
-use faer::Mat;
-use nalgebra_sparse::io::load_coo_from_matrix_market_str;
-use nalgebra_sparse::CooMatrix;
-
 use crate::error::{Block, Error, Result};
 use crate::problem::{Problem, ProblemBuilder, Triangle};
 
-/// One matrix read from a file, with whether it was stored densely.
-pub(crate) struct Loaded {
-    pub(crate) coo: CooMatrix<f64>,
-    pub(crate) dense: bool,
-}
+pub(crate) mod mtx;
+
+pub(crate) use mtx::{read_matrix, Loaded, Symmetry};
 
 fn read(path: &Path, block: Block) -> Result<Option<Loaded>> {
-    read_matrix(path, |text| locate_out_of_range(text, block, path))
+    read_matrix(path, &block.to_string())
 }
 
-/// Reads one Matrix Market file through nalgebra-sparse's parser; `Ok(None)` when the
-/// file does not exist. When the parser fails, `locate` may turn the file's text into a
-/// more precise error (the parser does not say where an index is out of range).
-pub(crate) fn read_matrix(path: &Path, locate: impl Fn(&str) -> Option<Error>) -> Result<Option<Loaded>> {
-    let text = match std::fs::read_to_string(path) {
-        Ok(t) => t,
-        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
-        Err(source) => {
-            return Err(Error::Io {
-                path: path.to_path_buf(),
-                source,
-            })
-        }
-    };
-    let header = text.lines().next().unwrap_or("").to_ascii_lowercase();
-    if !header.starts_with("%%matrixmarket") {
-        return Err(Error::Parse {
-            path: path.to_path_buf(),
-            message: "not a Matrix Market file: the first line must start with %%MatrixMarket".into(),
-        });
-    }
-    let dense = header.split_whitespace().any(|w| w == "array");
-    let coo = load_coo_from_matrix_market_str::<f64>(&text).map_err(|e| {
-        locate(&text).unwrap_or_else(|| Error::Parse {
-            path: path.to_path_buf(),
-            message: format!("{:?}: {}", e.kind(), e.message()),
-        })
-    })?;
-    Ok(Some(Loaded { coo, dense }))
-}
-
-/// The parser reports an out-of-range coordinate without its position; find the first
-/// such entry (1-based in the file) so the error names it (0-based, like every error).
-fn locate_out_of_range(text: &str, block: Block, path: &Path) -> Option<Error> {
-    let mut lines = text
-        .lines()
-        .map(str::trim)
-        .filter(|l| !l.is_empty() && !l.starts_with('%'));
-    let size: Vec<usize> = lines
-        .next()?
-        .split_whitespace()
-        .filter_map(|t| t.parse().ok())
-        .collect();
-    let (nrows, ncols) = (*size.first()?, *size.get(1)?);
-    lines.find_map(|l| {
-        let mut it = l.split_whitespace().map(|t| t.parse::<usize>());
-        let (Some(Ok(i)), Some(Ok(j))) = (it.next(), it.next()) else {
-            return None;
-        };
-        if i == 0 || j == 0 {
-            return Some(Error::Parse {
-                path: path.to_path_buf(),
-                message: format!("block {block}: entry ({i}, {j}) has a zero index; Matrix Market indices start at 1"),
-            });
-        }
-        (i > nrows || j > ncols).then(|| {
-            Error::IndexOutOfRange {
-                block,
-                row: i - 1,
-                col: j - 1,
-                nrows,
-                ncols,
-            }
-            .in_file(path)
-        })
-    })
-}
-
-fn vector(path: &Path, loaded: Option<Loaded>, block: Block) -> Result<Option<Vec<f64>>> {
+/// A vector file (k×1 or 1×k) as a vector of `expected` entries, duplicates summed. The
+/// declared length is compared with `expected` before anything is allocated.
+fn vector(path: &Path, loaded: Option<Loaded>, block: Block, expected: usize) -> Result<Option<Vec<f64>>> {
     let Some(l) = loaded else { return Ok(None) };
-    let (r, c) = (l.coo.nrows(), l.coo.ncols());
-    if c != 1 && r != 1 {
+    let (r, c) = (l.nrows, l.ncols);
+    if (c != 1 && r != 1) || r.max(c) != expected || (l.symmetry != Symmetry::General && r * c != 1) {
         return Err(Error::DimensionMismatch {
             block,
             rows: r,
             cols: c,
-            expected_rows: r.max(c),
+            expected_rows: expected,
             expected_cols: 1,
         }
         .in_file(path));
     }
-    let mut v = vec![0.0; r * c];
-    for (i, j, x) in l.coo.triplet_iter() {
-        v[i.max(j)] += *x;
+    let mut v = vec![0.0; expected];
+    for &(i, j, x) in &l.entries {
+        v[i.max(j)] += x;
+    }
+    // Entries are finite; a sum of duplicates may not be.
+    if let Some(k) = v.iter().position(|x| !x.is_finite()) {
+        return Err(Error::Parse {
+            path: path.to_path_buf(),
+            message: format!(
+                "block {block}: the duplicate entries of row {} (1-based, as in the file) sum to {}, \
+                 beyond double range",
+                k + 1,
+                v[k]
+            ),
+        });
     }
     Ok(Some(v))
 }
 
-pub(crate) fn triplets(coo: &CooMatrix<f64>) -> Vec<(usize, usize, f64)> {
-    coo.triplet_iter().map(|(i, j, v)| (i, j, *v)).collect()
-}
-
-pub(crate) fn dense(coo: &CooMatrix<f64>) -> Mat<f64> {
-    let mut m = Mat::zeros(coo.nrows(), coo.ncols());
-    for (i, j, v) in coo.triplet_iter() {
-        m[(i, j)] += *v;
-    }
-    m
+/// Bytes a problem of these sizes needs at the very least (its vectors, the column
+/// pointers of sparse blocks, the stored entries, and the KKT work vectors of a solve):
+/// `96·(n + m) + 32·entries`. A coarse floor, used only to refuse sizes that cannot fit.
+fn floor_bytes(n: usize, m: usize, entries: usize) -> u64 {
+    let dim = (n as u64).saturating_add(m as u64);
+    dim.saturating_mul(96)
+        .saturating_add((entries as u64).saturating_mul(32))
 }
 
 /// Reads a problem directory (see the module docs for the layout).
@@ -152,43 +91,70 @@ pub fn read_problem_dir(dir: impl AsRef<Path>) -> Result<Problem> {
         path: h_path.clone(),
         source: std::io::Error::new(std::io::ErrorKind::NotFound, "H.mtx is required in a problem directory"),
     })?;
-    let builder = if h.dense {
-        ProblemBuilder::new().hessian_dense(dense(&h.coo).as_ref(), Triangle::Full)
-    } else {
-        ProblemBuilder::new().hessian_triplets(h.coo.nrows().max(h.coo.ncols()), &triplets(&h.coo), Triangle::Full)
-    };
-    // A non-square H from a coordinate file is reported by the builder via the dense path.
-    if h.coo.nrows() != h.coo.ncols() {
+    if h.nrows != h.ncols {
         return Err(Error::DimensionMismatch {
             block: Block::H,
-            rows: h.coo.nrows(),
-            cols: h.coo.ncols(),
-            expected_rows: h.coo.nrows().max(h.coo.ncols()),
-            expected_cols: h.coo.nrows().max(h.coo.ncols()),
+            rows: h.nrows,
+            cols: h.ncols,
+            expected_rows: h.nrows.max(h.ncols),
+            expected_cols: h.nrows.max(h.ncols),
         }
         .in_file(&h_path));
     }
+    let n = h.nrows;
+    crate::memory::check(
+        floor_bytes(n, 0, h.entries.len()),
+        &format!("{}: H declared {n}×{n}", h_path.display()),
+    )?;
     let a_path = file("A.mtx");
-    let mut builder = match read(&a_path, Block::A)? {
+    let a = read(&a_path, Block::A)?;
+    let m = match &a {
+        Some(a) if a.ncols != n => {
+            return Err(Error::DimensionMismatch {
+                block: Block::A,
+                rows: a.nrows,
+                cols: a.ncols,
+                expected_rows: a.nrows,
+                expected_cols: n,
+            }
+            .in_file(&a_path))
+        }
+        Some(a) => a.nrows,
+        None => 0,
+    };
+    let a_entries = a.as_ref().map_or(0, |a| a.entries.len());
+    crate::memory::check(
+        floor_bytes(n, m, h.entries.len() + a_entries),
+        &format!("{}: A declared {m}×{n}", a_path.display()),
+    )?;
+    let builder = match (h.dense, h.symmetry) {
+        (true, _) => ProblemBuilder::new().hessian_dense(h.to_dense().as_ref(), Triangle::Full),
+        (false, Symmetry::Symmetric) => ProblemBuilder::new().hessian_triplets(n, &h.entries, Triangle::Lower),
+        (false, _) => ProblemBuilder::new().hessian_triplets(n, &h.full_triplets(), Triangle::Full),
+    };
+    drop(h);
+    let mut builder = match a {
         None => builder,
-        Some(a) if a.dense => builder.constraints_dense(dense(&a.coo).as_ref()),
-        Some(a) => builder.constraints_triplets(a.coo.nrows(), a.coo.ncols(), &triplets(&a.coo)),
+        Some(a) if a.dense => builder.constraints_dense(a.to_dense().as_ref()),
+        Some(a) => builder.constraints_triplets(a.nrows, a.ncols, &a.full_triplets()),
     };
     let c_path = file("c.mtx");
-    if let Some(c) = vector(&c_path, read(&c_path, Block::C)?, Block::C)? {
+    if let Some(c) = vector(&c_path, read(&c_path, Block::C)?, Block::C, n)? {
         builder = builder.linear(&c);
     }
     let b_path = file("b.mtx");
-    if let Some(b) = vector(&b_path, read(&b_path, Block::B)?, Block::B)? {
+    let b_file = read(&b_path, Block::B)?;
+    let b_given = b_file.is_some();
+    if let Some(b) = vector(&b_path, b_file, Block::B, m)? {
         builder = builder.rhs(&b);
     }
-    let has_a = a_path.exists();
+    let has_a = m > 0 || a_path.exists();
     builder.build().map_err(|e| {
         let path: PathBuf = match e.block() {
             Some(Block::H) => h_path.clone(),
             Some(Block::A) => a_path.clone(),
             Some(Block::C) => c_path.clone(),
-            Some(Block::B) if has_a || b_path.exists() => b_path.clone(),
+            Some(Block::B) if has_a || b_given => b_path.clone(),
             _ => return e,
         };
         e.in_file(path)

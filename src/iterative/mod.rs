@@ -100,20 +100,102 @@ pub fn solve(problem: &Problem, options: &IterativeOptions) -> Result<IterativeS
         )));
     }
     let t0 = Instant::now();
-    let precond = BlockDiagonal::from_problem(problem, options.first, options.second)?;
+    // Far from unit size, Krylov norms underflow or overflow: iterate on a power-of-two
+    // scaled copy (exact) and certify the answer on the original problem.
+    let scaled = unit_scaled(problem);
+    let (work, z_factor) = match &scaled {
+        Some((p, sigma, tau)) => (p, sigma / tau),
+        None => (problem, 1.0),
+    };
+    let precond = BlockDiagonal::from_problem(work, options.first, options.second)?;
     let factor_s = t0.elapsed().as_secs_f64();
     let t1 = Instant::now();
-    let rhs = kkt::rhs(problem.linear(), problem.rhs());
-    let out = minres(
-        problem,
+    let work_rhs = kkt::rhs(work.linear(), work.rhs());
+    let warm: Option<Vec<f64>> = options
+        .warm_start
+        .as_ref()
+        .map(|z| z.iter().map(|v| v / z_factor).collect());
+    let mut out = minres(
+        work,
         &precond,
-        &rhs,
-        options.warm_start.as_deref(),
+        &work_rhs,
+        warm.as_deref(),
         options.tol,
         options.max_iter,
     )?;
+    // Converged in the preconditioned norm is not enough: restart from the iterate with
+    // a tighter tolerance while the true residual misses the tolerance (at most 3 times,
+    // within the iteration limit).
+    let mut r = vec![0.0; work_rhs.len()];
+    for _ in 0..3 {
+        let true_res = true_relative_residual(work, &out.z, &work_rhs, &mut r);
+        let left = options.max_iter.saturating_sub(out.iterations);
+        if !out.converged || true_res <= options.tol || left == 0 || !true_res.is_finite() {
+            break;
+        }
+        let reached = out.history.last().copied().unwrap_or(options.tol);
+        let tighter = (reached * options.tol / true_res * 0.5).max(f64::EPSILON);
+        let again = minres(work, &precond, &work_rhs, Some(&out.z), tighter, left)?;
+        let mut history = std::mem::take(&mut out.history);
+        history.extend(again.history.iter().skip(1));
+        out = MinresOutcome {
+            z: again.z,
+            iterations: out.iterations + again.iterations,
+            converged: again.converged,
+            history,
+        };
+    }
+    if z_factor != 1.0 {
+        out.z.iter_mut().for_each(|v| *v *= z_factor);
+    }
     let solve_s = t1.elapsed().as_secs_f64();
+    let rhs = kkt::rhs(problem.linear(), problem.rhs());
     finish(problem, &rhs, out, options, factor_s, solve_s)
+}
+
+/// Entries of K and of the right-hand side far outside `[2⁻²⁰⁰, 2²⁰⁰]` make Krylov norms
+/// underflow or overflow. Returns a copy with K scaled by σ and `[c; b]` by τ (powers of
+/// two: exact, up to subnormal results) that bring both near 1, with σ and τ: the copy's
+/// solution maps back by `z = z'·σ/τ`, its residuals by `1/τ`. `None` when no scaling is
+/// needed.
+pub(crate) fn unit_scaled(problem: &Problem) -> Option<(Problem, f64, f64)> {
+    const SAFE: i32 = 200;
+    let k_max = problem.hessian().max_abs().max(problem.constraints().max_abs());
+    let r_max = crate::problem::inf_norm(problem.linear()).max(crate::problem::inf_norm(problem.rhs()));
+    let exponent = |v: f64| {
+        if v > 0.0 && v.is_finite() {
+            v.log2().round() as i32
+        } else {
+            0
+        }
+    };
+    let (ek, er) = (exponent(k_max), exponent(r_max));
+    if ek.abs() <= SAFE && er.abs() <= SAFE {
+        return None;
+    }
+    let sigma = 2f64.powi((-ek).clamp(-1020, 1020));
+    let tau = 2f64.powi((-er).clamp(-1020, 1020));
+    let scale = |m: &crate::problem::Matrix| -> crate::problem::Matrix {
+        match m {
+            crate::problem::Matrix::Dense(d) => {
+                crate::problem::Matrix::Dense(faer::Mat::from_fn(d.nrows(), d.ncols(), |i, j| d[(i, j)] * sigma))
+            }
+            crate::problem::Matrix::Sparse(s) => {
+                let mut s = s.clone();
+                s.val_mut().iter_mut().for_each(|v| *v *= sigma);
+                crate::problem::Matrix::Sparse(s)
+            }
+        }
+    };
+    let copy = Problem {
+        h: std::sync::Arc::new(scale(problem.hessian())),
+        a: std::sync::Arc::new(scale(problem.constraints())),
+        norm_k: Default::default(),
+        c: problem.linear().iter().map(|v| v * tau).collect(),
+        b: problem.rhs().iter().map(|v| v * tau).collect(),
+    };
+    // K' z' = τ rhs with K' = σK gives z' = (τ/σ) z.
+    Some((copy, sigma, tau))
 }
 
 /// `‖rhs − Kz‖₂ / ‖rhs‖₂` (the plain 2-norm when `rhs = 0`), leaving the residual in `r`.
@@ -180,7 +262,8 @@ pub fn finish(
 ) -> Result<IterativeSolution> {
     let mut r = vec![0.0; rhs.len()];
     let relative_residual = true_relative_residual(problem, &out.z, rhs, &mut r);
-    if !out.converged {
+    // Exit as solved only when the TRUE residual on the original K meets the tolerance.
+    if !out.converged || relative_residual.is_nan() || relative_residual > options.tol {
         return Err(not_converged(&out, relative_residual, options.tol));
     }
     let mut s = certified_solution(problem, &out.z, rhs, &r, MethodUsed::Minres, (factor_s, solve_s));

@@ -182,6 +182,9 @@ pub fn pcg(problem: &Problem, options: &PcgOptions) -> Result<PcgSolution> {
             options.diagonal_floor
         )));
     }
+    if let Some((work, sigma, tau)) = super::unit_scaled(problem) {
+        return unscaled(problem, pcg(&work, options)?, sigma, tau, options.tol);
+    }
     let (n, m) = (problem.n(), problem.m());
     let t0 = Instant::now();
     let mut d = vec![0.0; n];
@@ -348,6 +351,17 @@ pub fn pcg(problem: &Problem, options: &PcgOptions) -> Result<PcgSolution> {
     let solve_s = t1.elapsed().as_secs_f64();
     let mut res = vec![0.0; n + m];
     let relative_residual = super::true_relative_residual(problem, &z, &rhs, &mut res);
+    // Exit as solved only when the TRUE residual on the original K meets the tolerance.
+    if relative_residual.is_nan() || relative_residual > options.tol {
+        return Err(Error::NotConverged {
+            method: "pcg",
+            iterations: itn + minres_iterations,
+            residual: residual_history.last().copied().unwrap_or(f64::NAN),
+            true_residual: relative_residual,
+            tolerance: options.tol,
+            history_tail: history_tail(&residual_history, HISTORY_TAIL).to_vec(),
+        });
+    }
     let mut s = super::certified_solution(problem, &z, &rhs, &res, MethodUsed::Pcg, (factor_s, solve_s));
     s.verdict = verdict;
     let max_feas = feasibility_history.iter().fold(0.0f64, |a, v| a.max(*v));
@@ -374,4 +388,35 @@ pub fn pcg(problem: &Problem, options: &PcgOptions) -> Result<PcgSolution> {
         relative_residual,
         status,
     })
+}
+
+/// Maps a projected-CG solution of the power-of-two scaled copy (K·σ, `[c; b]`·τ, see
+/// [`super::unit_scaled`]) back to `problem` and certifies it there.
+fn unscaled(problem: &Problem, mut out: PcgSolution, sigma: f64, tau: f64, tol: f64) -> Result<PcgSolution> {
+    let f = sigma / tau;
+    let z: Vec<f64> = out.solution.x.iter().chain(&out.solution.y).map(|v| v * f).collect();
+    let rhs = kkt::rhs(problem.linear(), problem.rhs());
+    let mut res = vec![0.0; rhs.len()];
+    out.relative_residual = super::true_relative_residual(problem, &z, &rhs, &mut res);
+    if out.relative_residual.is_nan() || out.relative_residual > tol {
+        return Err(Error::NotConverged {
+            method: "pcg",
+            iterations: out.iterations + out.minres_iterations,
+            residual: out.residual_history.last().copied().unwrap_or(f64::NAN),
+            true_residual: out.relative_residual,
+            tolerance: tol,
+            history_tail: history_tail(&out.residual_history, HISTORY_TAIL).to_vec(),
+        });
+    }
+    let t = out.solution.timing;
+    let mut s = super::certified_solution(problem, &z, &rhs, &res, MethodUsed::Pcg, (t.factor_s, t.solve_s));
+    s.verdict = out.solution.verdict;
+    s.notes = std::mem::take(&mut out.solution.notes);
+    s.notes.push(format!(
+        "the problem was scaled by powers of two for the iteration (K by {sigma:e}, [c; b] by {tau:e}; exact) \
+         and the answer certified on the original data"
+    ));
+    out.feasibility_history.iter_mut().for_each(|v| *v /= tau);
+    out.solution = s;
+    Ok(out)
 }

@@ -1,4 +1,4 @@
-//! Fit directories in Matrix Market format (parsed by nalgebra-sparse's reader, as in
+//! Fit directories in Matrix Market format (read by the checked streaming reader of
 //! [`crate::io`]).
 //!
 //! | file    | required | shape | meaning |
@@ -16,16 +16,17 @@ use std::path::Path;
 use super::{FitBlock, LsqBuilder, LsqProblem};
 use crate::error::{Error, Result};
 
-use crate::io::{dense, read_matrix, triplets, Loaded};
+use crate::io::{read_matrix, Loaded};
 
 fn read(path: &Path) -> Result<Option<Loaded>> {
-    read_matrix(path, |_| None)
+    let block = path.file_stem().and_then(|s| s.to_str()).unwrap_or("?");
+    read_matrix(path, block)
 }
 
 fn vector(path: &Path, block: FitBlock) -> Result<Option<Vec<f64>>> {
     let Some(l) = read(path)? else { return Ok(None) };
-    let (r, c) = (l.coo.nrows(), l.coo.ncols());
-    if c != 1 && r != 1 {
+    let (r, c) = (l.nrows, l.ncols);
+    if (c != 1 && r != 1) || (r.max(c) > 1 && l.symmetry != crate::io::Symmetry::General) {
         return Err(Error::FitInput {
             block,
             row: None,
@@ -34,9 +35,13 @@ fn vector(path: &Path, block: FitBlock) -> Result<Option<Vec<f64>>> {
         }
         .in_file(path));
     }
-    let mut v = vec![0.0; r * c];
-    for (i, j, x) in l.coo.triplet_iter() {
-        v[i.max(j)] += *x;
+    crate::memory::check(
+        8 * r.max(c) as u64,
+        &format!("{}: a vector of {} entries", path.display(), r.max(c)),
+    )?;
+    let mut v = vec![0.0; r.max(c)];
+    for &(i, j, x) in &l.entries {
+        v[i.max(j)] += x;
     }
     Ok(Some(v))
 }
@@ -63,17 +68,17 @@ pub fn read_fit_dir(dir: impl AsRef<Path>) -> Result<LsqProblem> {
     };
     let f = read(&path("F.mtx"))?.ok_or_else(|| missing("F.mtx"))?;
     let mut b = if f.dense {
-        LsqBuilder::new().design_dense(dense(&f.coo).as_ref())
+        LsqBuilder::new().design_dense(f.to_dense().as_ref())
     } else {
-        LsqBuilder::new().design_triplets(f.coo.nrows(), f.coo.ncols(), &triplets(&f.coo))
+        LsqBuilder::new().design_triplets(f.nrows, f.ncols, &f.full_triplets())
     };
     let g = vector(&path("g.mtx"), FitBlock::G)?.ok_or_else(|| missing("g.mtx"))?;
     b = b.observations(&g);
     if let Some(c) = read(&path("C.mtx"))? {
         b = if c.dense {
-            b.restrictions_dense(dense(&c.coo).as_ref())
+            b.restrictions_dense(c.to_dense().as_ref())
         } else {
-            b.restrictions_triplets(c.coo.nrows(), c.coo.ncols(), &triplets(&c.coo))
+            b.restrictions_triplets(c.nrows, c.ncols, &c.full_triplets())
         };
     }
     if let Some(d) = vector(&path("d.mtx"), FitBlock::D)? {

@@ -436,9 +436,28 @@ fn build_general(block: Block, input: Input) -> Result<Matrix> {
             mut entries,
         } => {
             check_triplets(block, rows, cols, &entries)?;
-            Ok(Matrix::Sparse(csc_from_triplets(rows, cols, &mut entries)))
+            Ok(Matrix::Sparse(summed(
+                block,
+                csc_from_triplets(rows, cols, &mut entries),
+            )?))
         }
     }
+}
+
+/// Validates a sparse block after its duplicates were summed: each entry was finite, but a
+/// sum (1.5e308 + 1.5e308) may not be.
+fn summed(block: Block, s: faer::sparse::SparseColMat<usize, f64>) -> Result<faer::sparse::SparseColMat<usize, f64>> {
+    if let Some(k) = s.val().iter().position(|v| !v.is_finite()) {
+        let cp = s.symbolic().col_ptr();
+        let col = cp.partition_point(|&p| p <= k) - 1;
+        return Err(Error::DuplicateSumOverflow {
+            block,
+            row: s.symbolic().row_idx()[k],
+            col,
+            value: s.val()[k],
+        });
+    }
+    Ok(s)
 }
 
 fn square_check(rows: usize, cols: usize) -> Result<()> {
@@ -518,10 +537,10 @@ fn build_hessian(input: Input, triangle: Triangle, tol: f64) -> Result<Matrix> {
                         .map(|&(i, j, v)| (j, i, v))
                         .collect();
                     entries.extend(mirrored);
-                    Ok(Matrix::Sparse(csc_from_triplets(n, n, &mut entries)))
+                    Ok(Matrix::Sparse(summed(Block::H, csc_from_triplets(n, n, &mut entries))?))
                 }
                 Triangle::Full => {
-                    let mut s = csc_from_triplets(n, n, &mut entries);
+                    let mut s = summed(Block::H, csc_from_triplets(n, n, &mut entries))?;
                     symmetrize_sparse(&mut s, tol)?;
                     Ok(Matrix::Sparse(s))
                 }

@@ -148,14 +148,31 @@ pub(crate) fn dot(a: &[f64], b: &[f64]) -> f64 {
     a.iter().zip(b).map(|(p, q)| p * q).sum()
 }
 
-/// Euclidean norm.
+/// Euclidean norm, without underflow or overflow of the squares: vectors whose largest
+/// entry lies outside `[2⁻⁴⁵⁰, 2⁴⁵⁰]` are scaled by it first (common practice, as in
+/// LAPACK's `dnrm2`).
 pub(crate) fn norm2(v: &[f64]) -> f64 {
-    dot(v, v).sqrt()
+    let mx = inf_norm(v);
+    if mx == 0.0 || !mx.is_finite() {
+        return mx;
+    }
+    const SAFE: f64 = 2.9e135; // about 2⁴⁵⁰
+    if (1.0 / SAFE..=SAFE).contains(&mx) {
+        return dot(v, v).sqrt();
+    }
+    v.iter().map(|x| (x / mx) * (x / mx)).sum::<f64>().sqrt() * mx
 }
 
-/// Largest absolute entry (0 for an empty vector).
+/// `max |v_i|`, NaN when any entry is NaN (`f64::max` alone would skip it and hide a
+/// broken vector behind a small norm).
 pub(crate) fn inf_norm(v: &[f64]) -> f64 {
-    v.iter().fold(0.0f64, |a, x| a.max(x.abs()))
+    v.iter().fold(0.0f64, |a, x| {
+        if a.is_nan() || x.is_nan() {
+            f64::NAN
+        } else {
+            a.max(x.abs())
+        }
+    })
 }
 
 pub(crate) fn check_vector(block: Block, v: &[f64], expected: usize) -> Result<()> {
