@@ -17,18 +17,27 @@ fn in_file(path: &Path, err: Error) -> Error {
     }
 }
 
+/// True when something is at `path`, a dangling symbolic link included (the reader then
+/// names it as unreadable instead of taking the file as absent).
+fn present(path: &Path) -> bool {
+    path.symlink_metadata().is_ok()
+}
+
+/// A file that existed when the directory was listed but is gone now.
+fn missing_file(path: &Path) -> Error {
+    Error::Io {
+        path: path.to_path_buf(),
+        source: std::io::Error::new(std::io::ErrorKind::NotFound, "the file disappeared while it was read"),
+    }
+}
+
 /// Reads one vector file (n×1 or 1×n); `Ok(None)` when absent. Only regular files are read.
 fn vector(path: &Path, name: &'static str, expected: usize) -> Result<Option<Vec<f64>>> {
-    if path.exists() && !path.is_file() {
-        return Err(Error::Parse {
-            path: path.to_path_buf(),
-            message: "not a regular file".into(),
-        });
-    }
-    let Some(l) = crate::io::read_matrix(path, |_| None)? else {
+    // The reader refuses anything but a regular file (FIFOs, directories, dangling links).
+    let Some(l) = crate::io::read_matrix(path, name)? else {
         return Ok(None);
     };
-    let (r, c) = (l.coo.nrows(), l.coo.ncols());
+    let (r, c) = (l.nrows, l.ncols);
     if (c != 1 && r != 1) || r * c != expected {
         return Err(in_file(
             path,
@@ -41,8 +50,8 @@ fn vector(path: &Path, name: &'static str, expected: usize) -> Result<Option<Vec
         ));
     }
     let mut v = vec![0.0; expected];
-    for (i, j, x) in l.coo.triplet_iter() {
-        v[i.max(j)] += *x;
+    for (i, j, x) in l.full_triplets() {
+        v[i.max(j)] += x;
     }
     Ok(Some(v))
 }
@@ -53,17 +62,17 @@ fn vector(path: &Path, name: &'static str, expected: usize) -> Result<Option<Vec
 pub fn read_inequalities(dir: impl AsRef<Path>, base: &Problem) -> Result<Option<InequalityProblem>> {
     let dir = dir.as_ref();
     let path = |name: &str| -> PathBuf { dir.join(name) };
-    if INEQUALITY_FILES.iter().all(|f| !path(f).exists()) {
+    if INEQUALITY_FILES.iter().all(|f| !present(&path(f))) {
         return Ok(None);
     }
     let n = base.n();
     let g_path = path("G.mtx");
     let h_path = path("h.mtx");
     let mut q = InequalityProblem::new(base.clone());
-    match (g_path.exists(), h_path.exists()) {
+    match (present(&g_path), present(&h_path)) {
         (false, false) => {}
         (true, false) | (false, true) => {
-            let (have, missing) = if g_path.exists() {
+            let (have, missing) = if present(&g_path) {
                 (&g_path, &h_path)
             } else {
                 (&h_path, &g_path)
@@ -77,14 +86,10 @@ pub fn read_inequalities(dir: impl AsRef<Path>, base: &Problem) -> Result<Option
             });
         }
         (true, true) => {
-            if !g_path.is_file() {
-                return Err(Error::Parse {
-                    path: g_path,
-                    message: "not a regular file".into(),
-                });
-            }
-            let g = crate::io::read_matrix(&g_path, |_| None)?.expect("G.mtx exists");
-            let (p, cols) = (g.coo.nrows(), g.coo.ncols());
+            let Some(g) = crate::io::read_matrix(&g_path, "G")? else {
+                return Err(missing_file(&g_path));
+            };
+            let (p, cols) = (g.nrows, g.ncols);
             if cols != n {
                 return Err(in_file(
                     &g_path,
@@ -96,8 +101,10 @@ pub fn read_inequalities(dir: impl AsRef<Path>, base: &Problem) -> Result<Option
                     },
                 ));
             }
-            let h = vector(&h_path, "h", p)?.expect("h.mtx exists");
-            let triplets = crate::io::triplets(&g.coo);
+            let Some(h) = vector(&h_path, "h", p)? else {
+                return Err(missing_file(&h_path));
+            };
+            let triplets = g.full_triplets();
             q = q.with_inequalities(p, &triplets, &h).map_err(|e| {
                 let file = match &e {
                     Error::InequalityInput { block: "h", .. } => &h_path,
