@@ -81,7 +81,7 @@
 //! * `mpi` (off by default): distributed KKT solves on MPI ranks through MUMPS
 //!   (the `distributed` module, `tangency solve --method distributed`).
 //!   Needs OpenMPI, MUMPS built on it, libclang and pkg-config (Debian: `openmpi-bin
-//!   libopenmpi-dev libmumps-dev libclang-dev pkg-config`). The default build has no MPI.
+//!   libopenmpi-dev libmumps-dev libclang-dev clang pkg-config`). The default build has no MPI.
 //!
 //! ## Current state
 //!

@@ -10,7 +10,8 @@
 //!
 //! * **inertia** from MUMPS: `INFOG(12)` negative pivots and `INFOG(28)` null pivots, with
 //!   the settings that make the parallel count exact (sequential root front, `ICNTL(13) = 1`;
-//!   null-pivot detection, `ICNTL(24) = 1`; see [`mumps`](self) settings in the source);
+//!   null-pivot detection, `ICNTL(24) = 1`; the full list of settings, with their sources, is
+//!   at the top of `src/distributed/mumps.rs`);
 //! * **verdict** by the crate's rule (Nocedal & Wright 2006, ch. 16): inertia `(n, m, 0)` is
 //!   the unique minimizer, another nonsingular inertia a saddle point; a singular K of order
 //!   at most [`DistributedOptions::rescue_max_dim`] is gathered on rank 0 and given to the
