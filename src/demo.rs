@@ -118,52 +118,161 @@ pub fn reactions(lattice: &SpringLattice, s: &Solution) -> Vec<(usize, usize, f6
         .collect()
 }
 
+/// Moment about the origin (node 0, bottom-left, at (0, 0)) of a force `(fx, fy)` acting at
+/// node `nd` (at `(col, row)` in metres): `x·f_y − y·f_x`, counter-clockwise positive.
+fn moment(lattice: &SpringLattice, nd: usize, fx: f64, fy: f64) -> f64 {
+    let (x, y) = ((nd % lattice.columns) as f64, (nd / lattice.columns) as f64);
+    x * fy - y * fx
+}
+
 /// Runs the demo and returns its explanation, or the error if the solve failed.
 pub fn run() -> Result<String> {
     let lattice = spring_lattice(9, 3)?;
-    let s = solve(&lattice.problem, &Options::default())?;
+    let mut s = solve(&lattice.problem, &Options::default())?;
+    let (cols, rows) = (lattice.columns, lattice.rows);
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "Demo: a {}×{} spring lattice pinned at the bottom-left, on a roller at the bottom-right,\n\
-         with one horizontal tie, loaded by 10 kN on each top node and 2 kN sideways.\n\
+        "Demo: a {cols}×{rows} spring lattice (nodes 1 m apart; node k sits at column k mod {cols},\n\
+         row k div {cols}) pinned at the bottom-left node 0, on a roller at the bottom-right node {},\n\
+         with one horizontal tie between the middle nodes {} (top) and {} (bottom). Loads: 10 kN\n\
+         downward on each top node and 2 kN to the right (+x) on the top-left node {}.\n\
+         Signs: +x to the right, +y upward; a positive force pushes the lattice that way.\n\
          (An illustration of constrained minimization, not a structural design tool.)\n",
-        lattice.columns, lattice.rows
+        cols - 1,
+        (rows - 1) * cols + cols / 2,
+        cols / 2,
+        (rows - 1) * cols
     );
+    // Remarks about which factorization ran are for the solver's users, not for this story.
+    let internal = std::mem::take(&mut s.notes);
     out.push_str(&crate::report::human(&lattice.problem, &s));
-    let _ = writeln!(out, "\nSupport reactions (= −y on the support rows):");
+    if !internal.is_empty() {
+        let _ = writeln!(
+            out,
+            "  ({} solver note(s) omitted: `tangency solve` shows them)",
+            internal.len()
+        );
+    }
+    let _ = writeln!(
+        out,
+        "\nSupport reactions (the force each support exerts on the lattice, = −y on its row):"
+    );
     let mut sum = [0.0f64; 2];
+    let mut moments = 0.0f64;
     for (nd, dir, f) in reactions(&lattice, &s) {
-        let _ = writeln!(out, "  node {nd:>2} {}: {f:+.6} kN", if dir == 0 { "x" } else { "y" });
+        let _ = writeln!(
+            out,
+            "  node {nd:>2} {}: {f:+.6} kN ({})",
+            if dir == 0 { "x" } else { "y" },
+            match (dir, f >= 0.0) {
+                (0, true) => "pushes right",
+                (0, false) => "pushes left",
+                (_, true) => "pushes up",
+                (_, false) => "pulls down",
+            }
+        );
         sum[dir] += f;
+        moments += if dir == 0 {
+            moment(&lattice, nd, f, 0.0)
+        } else {
+            moment(&lattice, nd, 0.0, f)
+        };
     }
     let applied = [
         lattice.load.iter().step_by(2).sum::<f64>(),
         lattice.load.iter().skip(1).step_by(2).sum::<f64>(),
     ];
+    let applied_moment: f64 = lattice
+        .load
+        .chunks(2)
+        .enumerate()
+        .map(|(nd, f)| moment(&lattice, nd, f[0], f[1]))
+        .sum();
+    // The tie row is x_top − x_bottom = 0: it exerts −y_t on the top node and +y_t on the
+    // bottom node, both horizontal. They cancel as forces but, acting rows − 1 metres apart,
+    // form a couple.
     let tie = s.y[lattice.supports.len()];
-    let _ = writeln!(out, "  tie force (internal pair, cancels globally): {tie:+.6} kN");
-    let _ = writeln!(out, "\nEquilibrium check (reactions + applied loads should vanish):");
+    let (top, bottom) = ((rows - 1) * cols + cols / 2, cols / 2);
+    let tie_moment = moment(&lattice, top, -tie, 0.0) + moment(&lattice, bottom, tie, 0.0);
+    let _ = writeln!(
+        out,
+        "  tie: {:+.6} kN on node {top} and {:+.6} kN on node {bottom} (x): equal and opposite, so they cancel\n\
+         \x20      as forces, but {} m apart they form a couple of {:+.6} kN·m",
+        -tie,
+        tie,
+        rows - 1,
+        tie_moment
+    );
+    let _ = writeln!(
+        out,
+        "\nEquilibrium check (everything acting on the lattice should add up to zero):"
+    );
     for (d, name) in ["x", "y"].iter().enumerate() {
         let _ = writeln!(
             out,
-            "  {name}: reactions {:+.6} + applied {:+.6} = {:+.3e} kN",
+            "  force {name}: reactions {:+.6} + applied {:+.6} = {} kN",
             sum[d],
             applied[d],
-            sum[d] + applied[d]
+            crate::report::num(sum[d] + applied[d], 2)
         );
     }
+    let total_moment = moments + applied_moment + tie_moment;
+    let _ = writeln!(
+        out,
+        "  moment about node 0 (counter-clockwise +): reactions {moments:+.6} + applied {applied_moment:+.6} \
+         + tie couple {tie_moment:+.6} = {} kN·m",
+        crate::report::num(total_moment, 2)
+    );
+    // What statics by hand would give without the tie's couple: the roller balances the
+    // moment of the loads alone.
+    let span = (cols - 1) as f64;
+    let hand_roller = -applied_moment / span;
+    let roller = reactions(&lattice, &s)[2].2;
+    let _ = writeln!(
+        out,
+        "  the roller carries {roller:+.6} kN, not the {hand_roller:+.6} kN of statics by hand from the loads alone:\n\
+         \x20 the tie's couple ({tie_moment:+.6} kN·m) is balanced by the supports as well, shifting {:+.6} kN\n\
+         \x20 between the pin and the roller",
+        roller - hand_roller
+    );
     let max_defl = s.x.chunks(2).map(|u| u[0].hypot(u[1])).fold(0.0f64, f64::max);
     let _ = writeln!(out, "  largest node displacement: {:.6} mm", 1000.0 * max_defl);
-    let balanced = (sum[0] + applied[0]).abs() < 1e-9 && (sum[1] + applied[1]).abs() < 1e-9;
+    let tol = 1e-9;
+    let balanced =
+        (sum[0] + applied[0]).abs() < tol && (sum[1] + applied[1]).abs() < tol && total_moment.abs() < tol * span;
     let _ = writeln!(
         out,
         "\n{}",
         if balanced {
-            "The reactions balance the applied load: the multipliers are the support forces."
+            "The reactions balance the applied load in force and in moment: the multipliers are the support forces."
         } else {
-            "WARNING: the reactions do not balance the load to 1e-9 kN."
+            "WARNING: the reactions do not balance the load to 1e-9 kN (or kN·m)."
         }
     );
     Ok(out)
+}
+
+/// The three equilibrium residuals of a solved lattice (forces in x and y, moment about
+/// node 0), counting the support reactions, the applied load and the tie's couple.
+pub fn equilibrium(lattice: &SpringLattice, s: &Solution) -> [f64; 3] {
+    let mut r = [0.0f64; 3];
+    for (nd, dir, f) in reactions(lattice, s) {
+        r[dir] += f;
+        r[2] += if dir == 0 {
+            moment(lattice, nd, f, 0.0)
+        } else {
+            moment(lattice, nd, 0.0, f)
+        };
+    }
+    for (nd, f) in lattice.load.chunks(2).enumerate() {
+        r[0] += f[0];
+        r[1] += f[1];
+        r[2] += moment(lattice, nd, f[0], f[1]);
+    }
+    let tie = s.y[lattice.supports.len()];
+    let mid = lattice.columns / 2;
+    let top = (lattice.rows - 1) * lattice.columns + mid;
+    r[2] += moment(lattice, top, -tie, 0.0) + moment(lattice, mid, tie, 0.0);
+    r
 }

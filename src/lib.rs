@@ -116,6 +116,19 @@ pub mod solution;
 pub mod solver;
 pub mod stagewise;
 
+/// The faer version the builders and results use (`Mat`, `MatRef`, `SparseColMat`, …):
+/// `tangency::faer::Mat` needs no version matching in the caller's `Cargo.toml`.
+pub use faer;
+/// The nalgebra-sparse version the builders take (`CscMatrix`, `CooMatrix`), re-exported
+/// for the same reason.
+pub use nalgebra_sparse;
+
+/// The README's code blocks, compiled and run as documentation tests so that the library
+/// example works as pasted.
+#[cfg(doctest)]
+#[doc = include_str!("../README.md")]
+pub struct ReadmeExamples;
+
 pub use backend::dense_lblt::{DenseParams, Pivoting};
 pub use error::{Block, Error, Result};
 pub use problem::{Matrix, Problem, ProblemBuilder, Triangle};

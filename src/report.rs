@@ -224,34 +224,157 @@ pub fn error_json(err: &Error, sizes: Option<(usize, usize)>, method: Option<&st
     o
 }
 
-fn sci(x: f64) -> String {
-    format!("{x:.2e}")
+/// Largest `n + m` for which `tangency solve --json` includes `x` and `multipliers` by
+/// default (`--json-vectors N` changes it; `--out` always writes both in full).
+pub const JSON_VECTOR_LIMIT: usize = 100_000;
+
+/// Appends `note` to the `notes` array of a JSON object (creating it when absent).
+pub fn push_note(o: &mut Json, note: impl Into<String>) {
+    if let Json::Obj(entries) = o {
+        let note = Json::Str(note.into());
+        match entries.iter_mut().find(|(k, _)| k == "notes") {
+            Some((_, Json::Arr(items))) => items.push(note),
+            Some(slot) => slot.1 = Json::Arr(vec![note]),
+            None => entries.push(("notes".to_string(), Json::Arr(vec![note]))),
+        }
+    }
 }
 
-/// The readable report of a solve (our own layout).
+/// Sets `x` and `multipliers` on a solution object when `x.len() + y.len() ≤ limit`;
+/// otherwise sets both to `null` and says so in `notes`.
+///
+/// ```
+/// use tangency::report::{set_vectors, Json};
+/// let mut o = Json::object();
+/// set_vectors(&mut o, &[0.5, -0.5], &[1.0], 10);
+/// assert_eq!(o.get("x").unwrap().to_string(), "[0.5,-0.5]");
+/// set_vectors(&mut o, &[0.5, -0.5], &[1.0], 2);
+/// assert_eq!(o.get("x"), Some(&Json::Null));
+/// assert!(o.get("notes").unwrap().to_string().contains("left out"));
+/// ```
+pub fn set_vectors(o: &mut Json, x: &[f64], y: &[f64], limit: usize) {
+    let total = x.len().saturating_add(y.len());
+    if total <= limit {
+        o.set("x", x).set("multipliers", y);
+    } else {
+        o.set("x", Json::Null).set("multipliers", Json::Null);
+        push_note(
+            o,
+            format!(
+                "x and multipliers left out of the JSON: n + m = {total} exceeds the limit {limit} \
+                 (raise it with --json-vectors, or write them with --out)"
+            ),
+        );
+    }
+}
+
+/// A number for people: `0` for zero (never `-0`), plain decimals between 1e-3 and 1e6
+/// (trailing zeros trimmed), otherwise `d.ddde±k` without a zero exponent; `∞` for
+/// infinities. `digits` is the number of significant digits (at least 1).
+///
+/// ```
+/// use tangency::report::num;
+/// assert_eq!(num(-0.0, 4), "0");
+/// assert_eq!(num(1.0, 4), "1");
+/// assert_eq!(num(-2.5, 4), "-2.5");
+/// assert_eq!(num(1.23456e-9, 3), "1.23e-9");
+/// assert_eq!(num(6.02e23, 3), "6.02e23");
+/// assert_eq!(num(f64::INFINITY, 3), "∞");
+/// ```
+pub fn num(x: f64, digits: usize) -> String {
+    let digits = digits.max(1);
+    if x.is_nan() {
+        return "NaN".to_string();
+    }
+    if x.is_infinite() {
+        return if x > 0.0 { "∞" } else { "-∞" }.to_string();
+    }
+    if x == 0.0 {
+        return "0".to_string();
+    }
+    let a = x.abs();
+    if (1e-3..1e6).contains(&a) {
+        let magnitude = a.log10().floor() as i32;
+        let decimals = (digits as i32 - 1 - magnitude).max(0) as usize;
+        let mut s = format!("{x:.decimals$}");
+        if s.contains('.') {
+            while s.ends_with('0') {
+                s.pop();
+            }
+            if s.ends_with('.') {
+                s.pop();
+            }
+        }
+        if s == "-0" {
+            s = "0".to_string();
+        }
+        return s;
+    }
+    let s = format!("{x:.prec$e}", prec = digits - 1);
+    // Trim zeros of the mantissa ("1.50e-7" → "1.5e-7").
+    match s.split_once('e') {
+        Some((mant, exp)) => {
+            let mut mant = mant.to_string();
+            if mant.contains('.') {
+                while mant.ends_with('0') {
+                    mant.pop();
+                }
+                if mant.ends_with('.') {
+                    mant.pop();
+                }
+            }
+            format!("{mant}e{exp}")
+        }
+        None => s,
+    }
+}
+
+/// An inertia in words: `4 positive, 2 negative, 0 zero`.
+pub fn inertia_words(i: Inertia) -> String {
+    format!("{} positive, {} negative, {} zero", i.positive, i.negative, i.zero)
+}
+
+/// A readable excerpt of a vector: every entry when it has at most `show` of them,
+/// otherwise the `show` largest in magnitude with their 0-based indices.
+///
+/// ```
+/// use tangency::report::excerpt;
+/// assert_eq!(excerpt("x", &[0.5, -0.25], 4), "x[0] = 0.5, x[1] = -0.25");
+/// assert_eq!(
+///     excerpt("y", &[0.0, 3.0, -7.0, 1.0], 2),
+///     "largest 2 of 4 in magnitude: y[2] = -7, y[1] = 3"
+/// );
+/// ```
+pub fn excerpt(name: &str, v: &[f64], show: usize) -> String {
+    let entry = |i: usize| format!("{name}[{i}] = {}", num(v[i], 6));
+    if v.is_empty() {
+        return "(none)".to_string();
+    }
+    if v.len() <= show {
+        return (0..v.len()).map(entry).collect::<Vec<_>>().join(", ");
+    }
+    let mut idx: Vec<usize> = (0..v.len()).collect();
+    idx.sort_by(|&a, &b| v[b].abs().total_cmp(&v[a].abs()).then(a.cmp(&b)));
+    let listed: Vec<String> = idx.into_iter().take(show).map(entry).collect();
+    format!("largest {show} of {} in magnitude: {}", v.len(), listed.join(", "))
+}
+
+/// Entries of `x` and `y` shown in the readable report ([`excerpt`]).
+pub const REPORT_EXCERPT: usize = 6;
+
+/// The readable report of a solve (our own layout): the answer first (verdict, objective,
+/// an excerpt of `x` and the multipliers), then the evidence (inertia, residuals, backward
+/// error), then the problem and the time.
 pub fn human(problem: &Problem, s: &Solution) -> String {
     let (n, m) = (problem.n(), problem.m());
     let (hn, an) = problem.nnz();
     let kind = |sparse: bool| if sparse { "sparse" } else { "dense" };
     let mut out = String::new();
-    let _ = writeln!(out, "── tangency: equality-constrained QP ──");
-    let _ = writeln!(
-        out,
-        "  size        {n} variable(s), {m} constraint(s); KKT order {}",
-        n + m
-    );
-    let _ = writeln!(
-        out,
-        "  stored      H {hn} entries ({}), A {an} entries ({})",
-        kind(problem.hessian().is_sparse()),
-        kind(problem.constraints().is_sparse())
-    );
-    let _ = writeln!(out, "  method      {}", s.method);
-    if let Some(i) = s.inertia {
-        let _ = writeln!(out, "  inertia     {i}   (a minimizer needs (+{n}, -{m}, 0:0))");
-    } else {
-        let _ = writeln!(out, "  inertia     not observed by this method");
-    }
+    let headline = match s.verdict {
+        Some(v) => format!("{v}"),
+        None => "stationary point (kind not certified)".to_string(),
+    };
+    let _ = writeln!(out, "tangency solve ▸ {headline}");
     match s.verdict {
         Some(v) => {
             let _ = writeln!(out, "  verdict     {v}: {}", v.explain());
@@ -263,27 +386,69 @@ pub fn human(problem: &Problem, s: &Solution) -> String {
             );
         }
     }
-    let _ = writeln!(out, "  objective   {:.15e}", s.objective);
+    let _ = writeln!(out, "  objective   {}", num(s.objective, 15));
+    let _ = writeln!(out, "  x           {}", excerpt("x", &s.x, REPORT_EXCERPT));
+    let _ = writeln!(out, "  multipliers {}", excerpt("y", &s.y, REPORT_EXCERPT));
+    let _ = writeln!(
+        out,
+        "              sign: Hx + c + Aᵀy = 0, so raising b_i by 1 changes the optimum by −y_i"
+    );
+    match s.inertia {
+        Some(i) if i.zero > 0 && s.verdict.is_some() => {
+            // The rank analysis resolved a singular K: report the system that was solved.
+            let _ = writeln!(
+                out,
+                "  inertia     K: {} (singular); the rank analysis dropped dependent rows (named in the notes) \
+                 and solved the reduced system",
+                inertia_words(i)
+            );
+            if s.verdict == Some(crate::Verdict::Minimizer) {
+                let kept = m.saturating_sub(i.zero);
+                let _ = writeln!(
+                    out,
+                    "              reduced K: {} with {kept} of {m} rows kept, as a minimizer needs",
+                    inertia_words(Inertia::new(n, kept, 0))
+                );
+            }
+        }
+        Some(i) => {
+            let _ = writeln!(
+                out,
+                "  inertia     K: {} (a minimizer needs {n} positive, {m} negative, 0 zero)",
+                inertia_words(i)
+            );
+        }
+        None => {
+            let _ = writeln!(out, "  inertia     not observed by this method");
+        }
+    }
     let _ = writeln!(
         out,
         "  residuals   feasibility ‖Ax−b‖∞ {}   stationarity ‖Hx+c+Aᵀy‖∞ {}",
-        sci(s.primal_residual),
-        sci(s.dual_residual)
+        num(s.primal_residual, 3),
+        num(s.dual_residual, 3)
     );
     let _ = writeln!(
         out,
         "  accuracy    backward error {} after {} refinement step(s)",
-        sci(s.backward_error),
+        num(s.backward_error, 3),
         s.refinement_steps
     );
     let _ = writeln!(
         out,
-        "  time        analyze {:.3e} s · factor {:.3e} s · solve {:.3e} s",
-        s.timing.analyze_s, s.timing.factor_s, s.timing.solve_s
+        "  problem     {n} unknown(s), {m} equation(s), K of order {}; H {} ({hn} stored), A {} ({an} stored); \
+         method {}",
+        n + m,
+        kind(problem.hessian().is_sparse()),
+        kind(problem.constraints().is_sparse()),
+        s.method
     );
     let _ = writeln!(
         out,
-        "  multipliers sign convention Hx + c + Aᵀy = 0: raising b_i by 1 changes the optimum by −y_i"
+        "  time        analyze {} s · factor {} s · solve {} s",
+        num(s.timing.analyze_s, 3),
+        num(s.timing.factor_s, 3),
+        num(s.timing.solve_s, 3)
     );
     for note in &s.notes {
         let _ = writeln!(out, "  note        {note}");

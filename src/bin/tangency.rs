@@ -8,7 +8,7 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
-use tangency::report::{error_json, human, solution_json, Json};
+use tangency::report::{error_json, human, set_vectors, solution_json, Json};
 use tangency::{diagnostics, io, Error, Method, Options, Plan};
 
 #[derive(Parser, Debug)]
@@ -37,7 +37,8 @@ enum Command {
         /// factored once; convex problems, A of full row rank; see --tol, --max-iter).
         #[arg(long, default_value = "auto")]
         method: String,
-        /// Stage dimensions NX,NU,N for --method riccati (required with it).
+        /// Stage dimensions NX,NU,N for --method riccati (required with it; refused with
+        /// other methods).
         #[arg(long)]
         stages: Option<String>,
         /// Write x.mtx and multipliers.mtx into this directory.
@@ -46,25 +47,32 @@ enum Command {
         /// Print exactly one JSON object on stdout (whatever the outcome).
         #[arg(long)]
         json: bool,
+        /// With --json: include `x` and `multipliers` when n + m is at most this many entries
+        /// (default 100000); above it both are null and a note says so. 0 leaves them out.
+        #[arg(long)]
+        json_vectors: Option<usize>,
         /// For --method minres: relative tolerance of the preconditioned KKT residual; for
-        /// --method pcg: of the KKT residual in the 2-norm (both relative to ‖[−c; b]‖).
-        #[arg(long, default_value_t = tangency::iterative::DEFAULT_TOLERANCE)]
-        tol: f64,
-        /// For --method minres or pcg: iteration limit (exit 4 when reached). --tol and
-        /// --max-iter also bound each MINRES solve when auto falls back to MINRES.
-        #[arg(long, default_value_t = tangency::iterative::DEFAULT_MAX_ITER)]
-        max_iter: usize,
-        /// For --method auto: memory (MiB) a sparse direct factorization may use; above the
+        /// --method pcg: of the KKT residual in the 2-norm (both relative to ‖[−c; b]‖); for
+        /// --method auto: of each MINRES solve when auto falls back to MINRES. Default 1e-10.
+        /// Refused with the direct methods.
+        #[arg(long)]
+        tol: Option<f64>,
+        /// For --method minres, pcg or auto (its MINRES fallback): iteration limit (exit 4 when
+        /// reached). Default 10000. Refused with the direct methods.
+        #[arg(long)]
+        max_iter: Option<usize>,
+        /// For --method auto only: memory (MiB) a sparse direct factorization may use; above the
         /// estimate from the symbolic analysis, auto uses preconditioned MINRES. Default: half
         /// of the available memory.
         #[arg(long)]
         memory_budget: Option<u64>,
-        /// For --method minres: second preconditioner block, cholesky (sparse Cholesky of
-        /// A diag(H)⁻¹ Aᵀ), diagonal (its diagonal) or matching (Pearson–Wathen: one sparse
-        /// factorization of A₁D₁^(-1/2) ± A₂D₂^(-1/2); needs A = [A₁ A₂] with square blocks).
-        #[arg(long, default_value = "cholesky")]
-        schur_block: String,
+        /// For --method minres only: second preconditioner block, cholesky (sparse Cholesky of
+        /// A diag(H)⁻¹ Aᵀ, the default), diagonal (its diagonal) or matching (Pearson–Wathen: one
+        /// sparse factorization of A₁D₁^(-1/2) ± A₂D₂^(-1/2); needs A = [A₁ A₂] with square blocks).
+        #[arg(long)]
+        schur_block: Option<String>,
         /// Also report how the optimal objective moves with b and c (df/db = −y, df/dc = x).
+        /// Direct methods only (refused with minres and pcg, whose verdict is not certified).
         #[arg(long)]
         sensitivity: bool,
     },
@@ -83,11 +91,42 @@ enum Command {
         #[arg(long)]
         control: bool,
     },
-    /// Restricted least squares from a directory of Matrix Market files
-    /// (F.mtx, g.mtx required; C.mtx, d.mtx, w.mtx optional).
+    /// Restricted least squares: minimize ½‖W^½(Fβ − g)‖² + ½λ‖β‖² subject to Cβ = d.
+    ///
+    /// F (p×n) is the design matrix (one row per observation, one column per coefficient),
+    /// g (p) the observed responses, w (p, positive) the weights (W = diag(w), default all
+    /// ones), C (q×n) and d (q) the linear restrictions on the coefficients β, λ the ridge.
+    /// The directory holds either data.csv (a header row of names, then one observation per
+    /// row: the response column, by default the first, gives g; the others give the columns
+    /// of F and name the coefficients) or the Matrix Market files F.mtx, g.mtx and optionally
+    /// C.mtx, d.mtx, w.mtx (coefficients named b0, b1, …). Restrictions may also be written
+    /// as equations against the names, in restrictions.txt (one per line) or with --restrict:
+    /// a term is NUMBER, NAME, NUMBER*NAME or NUMBER NAME, joined by + or -, one '=' per
+    /// equation; '#' starts a comment ("x1 + x2 = 1", "2*x3 - x4 = 0").
+    /// Reports β with standard errors, t statistics, two-sided p-values, confidence
+    /// intervals, HC0–HC3 robust standard errors, the multipliers y (d(½·RSS)/dd = −y) and
+    /// the F, Wald, likelihood-ratio and score tests of the restrictions.
     Fit {
         /// The fit directory.
         dir: PathBuf,
+        /// A restriction equation against the coefficient names (repeatable).
+        #[arg(long = "restrict")]
+        restrict: Vec<String>,
+        /// data.csv only: the response column (default: the first column).
+        #[arg(long)]
+        response: Option<String>,
+        /// data.csv only: the weights column (default: all weights 1).
+        #[arg(long)]
+        weights: Option<String>,
+        /// data.csv only: add a column of ones named `intercept` in front of F.
+        #[arg(long)]
+        intercept: bool,
+        /// Ridge parameter λ ≥ 0 (adds ½λ‖β‖²; sampling statistics are then not reported).
+        #[arg(long, default_value_t = 0.0)]
+        ridge: f64,
+        /// Confidence level of the intervals, in (0, 1).
+        #[arg(long, default_value_t = 0.95)]
+        level: f64,
         /// Write coefficients.mtx and multipliers.mtx into this directory.
         #[arg(long)]
         out: Option<PathBuf>,
@@ -145,6 +184,59 @@ fn exit_code(err: &Error) -> u8 {
     }
 }
 
+/// Which method-specific options of `solve` the user wrote on the command line.
+struct GivenOptions {
+    stages: bool,
+    tol: bool,
+    max_iter: bool,
+    memory_budget: bool,
+    schur_block: bool,
+    sensitivity: bool,
+}
+
+/// Refuses options that would do nothing with `method` (one rule for every method: an
+/// option is accepted only where it changes the result).
+fn check_applicable(method: &str, given: &GivenOptions) -> Result<(), Error> {
+    let iterative = matches!(method, "minres" | "pcg");
+    let mut refused: Vec<&str> = Vec::new();
+    if given.stages && method != "riccati" {
+        refused.push("--stages (stage dimensions: only --method riccati uses them)");
+    }
+    if given.schur_block && method != "minres" {
+        refused.push("--schur-block (only --method minres has a Schur block)");
+    }
+    if given.memory_budget && method != "auto" {
+        refused.push("--memory-budget (only --method auto chooses by memory)");
+    }
+    if !iterative && method != "auto" {
+        if given.tol {
+            refused.push("--tol (only minres, pcg and auto's MINRES fallback iterate)");
+        }
+        if given.max_iter {
+            refused.push("--max-iter (only minres, pcg and auto's MINRES fallback iterate)");
+        }
+    }
+    if given.sensitivity && iterative {
+        refused.push("--sensitivity (needs a direct method: the iterative methods do not certify the verdict)");
+    }
+    if refused.is_empty() {
+        Ok(())
+    } else {
+        Err(Error::InvalidOption(format!(
+            "option(s) that do nothing with --method {method}: {}",
+            refused.join("; ")
+        )))
+    }
+}
+
+/// Where and how a solve is shown: `--out`, `--json` and the JSON vector limit.
+#[derive(Copy, Clone)]
+struct Shown<'a> {
+    out: Option<&'a std::path::Path>,
+    json: bool,
+    vectors: usize,
+}
+
 fn main() -> ExitCode {
     let args: Vec<String> = std::env::args().collect();
     let json_requested = args.iter().any(|a| a == "--json");
@@ -186,58 +278,105 @@ fn main() -> ExitCode {
             stages,
             out,
             json,
+            json_vectors,
             tol,
             max_iter,
             memory_budget,
             schur_block,
             sensitivity,
         } => {
+            let given = GivenOptions {
+                stages: stages.is_some(),
+                tol: tol.is_some(),
+                max_iter: max_iter.is_some(),
+                memory_budget: memory_budget.is_some(),
+                schur_block: schur_block.is_some(),
+                sensitivity,
+            };
+            if let Err(err) = check_applicable(&method, &given) {
+                if json {
+                    println!("{}", error_json(&err, None, None, None));
+                } else {
+                    print_error(&err);
+                }
+                return ExitCode::from(exit_code(&err));
+            }
+            let tol = tol.unwrap_or(tangency::iterative::DEFAULT_TOLERANCE);
+            let max_iter = max_iter.unwrap_or(tangency::iterative::DEFAULT_MAX_ITER);
+            let vectors = json_vectors.unwrap_or(tangency::report::JSON_VECTOR_LIMIT);
+            let schur_block = schur_block.unwrap_or_else(|| "cholesky".to_string());
+            let shown = Shown {
+                out: out.as_deref(),
+                json,
+                vectors,
+            };
             if method == "distributed" {
                 return solve_distributed(&dir, out.as_deref(), json);
             }
             if let Some(code) = refuse_iterative_with_inequalities(&dir, &method, json) {
                 code
             } else if method == "pcg" {
-                solve_pcg(&dir, tol, max_iter, out.as_deref(), json)
+                solve_pcg(&dir, tol, max_iter, shown)
             } else if method == "minres" {
-                solve_iterative(&dir, tol, max_iter, &schur_block, out.as_deref(), json)
+                solve_iterative(&dir, tol, max_iter, &schur_block, shown)
             } else {
                 let limits = (tol, max_iter, memory_budget.map(|mib| mib.saturating_mul(1 << 20)));
-                solve(
-                    &dir,
-                    &method,
-                    stages.as_deref(),
-                    limits,
-                    out.as_deref(),
-                    json,
-                    sensitivity,
-                )
+                solve(&dir, &method, stages.as_deref(), limits, shown, sensitivity)
             }
         }
         Command::Inspect { dir, json } => inspect(&dir, json),
         Command::Generate { family, size, out } => generate(&family, size, &out),
-        Command::Fit { dir, out, json } => fit(&dir, out.as_deref(), json),
+        Command::Fit {
+            dir,
+            restrict,
+            response,
+            weights,
+            intercept,
+            ridge,
+            level,
+            out,
+            json,
+        } => {
+            let input = tangency::lsq::input::FitInput {
+                response,
+                weights,
+                intercept,
+                restrictions: restrict,
+                ridge,
+            };
+            fit(&dir, &input, level, out.as_deref(), json)
+        }
     }
 }
 
-fn fit(dir: &std::path::Path, out: Option<&std::path::Path>, json: bool) -> ExitCode {
-    use tangency::lsq::report::{fit_error_json, fit_human, fit_json};
-    let fail = |err: Error, sizes: Option<(usize, usize, usize)>| {
+fn fit(
+    dir: &std::path::Path,
+    input: &tangency::lsq::input::FitInput,
+    level: f64,
+    out: Option<&std::path::Path>,
+    json: bool,
+) -> ExitCode {
+    use tangency::lsq::report::{fit_error_json, fit_human_at, fit_json_at};
+    let fail = |err: Error, sizes: Option<(usize, usize, usize)>, names: Option<&[String]>| {
         if json {
-            println!("{}", fit_error_json(&err, sizes));
+            println!("{}", fit_error_json(&err, sizes, names));
         } else {
             print_error(&err);
         }
         ExitCode::from(exit_code(&err))
     };
-    let problem = match tangency::lsq::io::read_fit_dir(dir) {
+    if !(level > 0.0 && level < 1.0) {
+        let err = Error::InvalidOption(format!("--level {level} must lie strictly between 0 and 1"));
+        return fail(err, None, None);
+    }
+    let problem = match tangency::lsq::input::read_fit(dir, input) {
         Ok(p) => p,
-        Err(e) => return fail(e, None),
+        Err(e) => return fail(e, None, None),
     };
     let sizes = Some((problem.p(), problem.n(), problem.q()));
     let result = match problem.fit(&tangency::lsq::FitOptions::default()) {
         Ok(r) => r,
-        Err(e) => return fail(e, sizes),
+        Err(e) => return fail(e, sizes, Some(problem.names())),
     };
     if let Some(out) = out {
         let written = write_pair(
@@ -246,13 +385,13 @@ fn fit(dir: &std::path::Path, out: Option<&std::path::Path>, json: bool) -> Exit
             ("multipliers.mtx", &result.multipliers),
         );
         if let Err(e) = written {
-            return fail(e, sizes);
+            return fail(e, sizes, Some(problem.names()));
         }
     }
     if json {
-        println!("{}", fit_json(&problem, &result));
+        println!("{}", fit_json_at(&problem, &result, level));
     } else {
-        print!("{}", fit_human(&problem, &result));
+        print!("{}", fit_human_at(&problem, &result, level));
     }
     ExitCode::SUCCESS
 }
@@ -276,12 +415,26 @@ fn generate(family: &str, size: usize, out: &std::path::Path) -> ExitCode {
 fn inspect(dir: &std::path::Path, json: bool) -> ExitCode {
     match diagnostics::inspect::inspect_dir(dir, &Options::default()) {
         Ok(info) => {
+            // An infeasible or unbounded problem has no solution: exit 3 with the diagnosis,
+            // as `solve` would, instead of reporting a successful inspection.
+            let no_solution = info.no_solution;
             if json {
-                println!("{}", info.to_json());
+                let mut o = info.to_json();
+                if let Some(status) = no_solution {
+                    o.set("status", status);
+                }
+                println!("{o}");
             } else {
                 print!("{info}");
+                if let Some(status) = no_solution {
+                    eprintln!("tangency: no solution ({status}): {}", info.diagnosis);
+                }
             }
-            ExitCode::SUCCESS
+            if no_solution.is_some() {
+                ExitCode::from(3)
+            } else {
+                ExitCode::SUCCESS
+            }
         }
         Err(err) => {
             if json {
@@ -291,10 +444,38 @@ fn inspect(dir: &std::path::Path, json: bool) -> ExitCode {
                 }
                 println!("{o}");
             } else {
-                eprintln!("tangency: invalid input: {err}");
+                print_error(&err);
             }
             ExitCode::from(exit_code(&err))
         }
+    }
+}
+
+/// The method that produced an error of `Plan::factor`: the rank analysis (null-space
+/// method) is the only source of `infeasible` and `unbounded`, whichever method was planned.
+fn method_of_factor_error(err: &Error, planned: &'static str) -> &'static str {
+    match err {
+        Error::Infeasible { .. } | Error::Unbounded { .. } => "nullspace",
+        _ => planned,
+    }
+}
+
+/// Writes `x.mtx` and `multipliers.mtx` when `--out` was given.
+fn write_solution(shown: Shown<'_>, solution: &tangency::Solution) -> Result<(), Error> {
+    match shown.out {
+        Some(out) => write_pair(out, ("x.mtx", &solution.x), ("multipliers.mtx", &solution.y)),
+        None => Ok(()),
+    }
+}
+
+/// The line of the readable report naming the files written by `--out`.
+fn print_written(shown: Shown<'_>) {
+    if let Some(out) = shown.out {
+        println!(
+            "  written     {} and {}",
+            out.join("x.mtx").display(),
+            out.join("multipliers.mtx").display()
+        );
     }
 }
 
@@ -304,10 +485,10 @@ fn solve(
     method: &str,
     stages: Option<&str>,
     limits: (f64, usize, Option<u64>),
-    out: Option<&std::path::Path>,
-    json: bool,
+    shown: Shown<'_>,
     sensitivity: bool,
 ) -> ExitCode {
+    let json = shown.json;
     let fail = |err: Error, sizes: Option<(usize, usize)>, used: Option<&str>, inertia, kappa: Option<f64>| {
         if json {
             let mut o = error_json(&err, sizes, used, inertia);
@@ -368,7 +549,7 @@ fn solve(
     };
     // G.mtx, h.mtx, lo.mtx, hi.mtx present: the interior-point solver (issue 17).
     match tangency::inequality::read_inequalities(dir, &problem) {
-        Ok(Some(q)) => return solve_inequalities(&q, &options, out, json),
+        Ok(Some(q)) => return solve_inequalities(&q, &options, shown),
         Ok(None) => {}
         Err(e) => return fail(e, sizes, None, None, None),
     }
@@ -376,11 +557,16 @@ fn solve(
         Ok(p) => p,
         Err(e) => return fail(e, sizes, None, None, None),
     };
-    let used = plan.method().as_str();
+    let planned = plan.method().as_str();
     let factorization = match plan.factor(&problem) {
         Ok(f) => f,
-        Err(e) => return fail(e, sizes, Some(used), None, None),
+        Err(e) => {
+            let used = method_of_factor_error(&e, planned);
+            return fail(e, sizes, Some(used), None, None);
+        }
     };
+    // The backend that holds the factors (after any fallback or rank analysis).
+    let used = factorization.backend().method().as_str();
     // A few solves with the factors (at most diagnostics::condition::MAX_SOLVE_CALLS).
     let condition = diagnostics::condition::estimate(&factorization);
     let kappa = Some(condition.kappa);
@@ -388,16 +574,14 @@ fn solve(
         Ok(s) => s,
         Err(e) => return fail(e, sizes, Some(used), factorization.inertia(), kappa),
     };
-    if let Some(out) = out {
-        let written = write_pair(out, ("x.mtx", &solution.x), ("multipliers.mtx", &solution.y));
-        if let Err(e) = written {
-            return fail(e, sizes, Some(used), solution.inertia, kappa);
-        }
+    if let Err(e) = write_solution(shown, &solution) {
+        return fail(e, sizes, Some(used), solution.inertia, kappa);
     }
     let bound = condition.forward_error_bound(solution.backward_error);
     let finite = |v: f64| v.is_finite().then_some(v);
     if json {
         let mut o = solution_json(&problem, &solution);
+        set_vectors(&mut o, &solution.x, &solution.y, shown.vectors);
         o.set("condition_estimate", finite(condition.kappa));
         o.set("forward_error_bound", finite(bound));
         if sensitivity {
@@ -411,8 +595,8 @@ fn solve(
     } else {
         print!("{}", human(&problem, &solution));
         println!(
-            "  condition   κ₁(K) ≈ {:.2e} ({} solve(s)); relative forward error ≤ {:.1e}",
-            condition.kappa, condition.solves, bound
+            "  condition   {}",
+            condition_line(condition.kappa, condition.solves, bound)
         );
         if sensitivity {
             println!("  sensitivity of the optimal objective (first order):");
@@ -421,13 +605,7 @@ fn solve(
                 diagnostics::sensitivity::objective_sensitivity(&solution).describe(20)
             );
         }
-        if let Some(out) = out {
-            println!(
-                "  written     {} and {}",
-                out.join("x.mtx").display(),
-                out.join("multipliers.mtx").display()
-            );
-        }
+        print_written(shown);
     }
     ExitCode::SUCCESS
 }
@@ -456,6 +634,24 @@ fn solve_distributed(dir: &std::path::Path, out: Option<&std::path::Path>, json:
     }
 }
 
+/// The condition line of the readable report: κ estimate and the forward-error bound it
+/// implies, in words when the bound says nothing (K singular to working precision, or a
+/// bound of 1 or more).
+fn condition_line(kappa: f64, solves: usize, bound: f64) -> String {
+    use tangency::report::num;
+    if !kappa.is_finite() {
+        return "κ₁(K) = ∞ (K is singular to working precision): no forward-error bound; the residuals \
+                and backward error above certify the computed point"
+            .to_string();
+    }
+    let bound_words = if bound.is_finite() && bound < 1.0 {
+        format!("relative forward error ≤ {}", num(bound, 2))
+    } else {
+        "the estimate bounds no digit of x (the residuals and backward error still hold)".to_string()
+    };
+    format!("κ₁(K) ≈ {} ({solves} solve(s)); {bound_words}", num(kappa, 3))
+}
+
 /// Reports a failed iterative solve (error JSON with the iterations and residual tail of a
 /// non-convergence, or the message) and returns its exit code.
 fn fail_iterative(err: Error, sizes: Option<(usize, usize)>, method: &str, json: bool) -> ExitCode {
@@ -475,9 +671,11 @@ fn iterative_json(
     iterations: usize,
     history: &[f64],
     relative_residual: f64,
+    vectors: usize,
 ) -> Json {
     use tangency::iterative::{history_tail, HISTORY_TAIL};
     let mut o = solution_json(problem, solution);
+    set_vectors(&mut o, &solution.x, &solution.y, vectors);
     o.set("iterations", iterations);
     o.set("residual_history_tail", history_tail(history, HISTORY_TAIL));
     o.set("relative_residual", relative_residual);
@@ -485,15 +683,9 @@ fn iterative_json(
 }
 
 /// `solve --method minres`: the iterative path (inertia and verdict are not observed).
-fn solve_iterative(
-    dir: &std::path::Path,
-    tol: f64,
-    max_iter: usize,
-    schur_block: &str,
-    out: Option<&std::path::Path>,
-    json: bool,
-) -> ExitCode {
+fn solve_iterative(dir: &std::path::Path, tol: f64, max_iter: usize, schur_block: &str, shown: Shown<'_>) -> ExitCode {
     use tangency::iterative::{self, IterativeOptions, SecondBlock};
+    let json = shown.json;
     let fail = |err: Error, sizes: Option<(usize, usize)>| fail_iterative(err, sizes, "minres", json);
     let second = match schur_block {
         "cholesky" => SecondBlock::Cholesky,
@@ -524,11 +716,8 @@ fn solve_iterative(
         Err(e) => return fail(e, sizes),
     };
     let solution = &result.solution;
-    if let Some(out) = out {
-        let written = write_pair(out, ("x.mtx", &solution.x), ("multipliers.mtx", &solution.y));
-        if let Err(e) = written {
-            return fail(e, sizes);
-        }
+    if let Err(e) = write_solution(shown, solution) {
+        return fail(e, sizes);
     }
     if json {
         let o = iterative_json(
@@ -537,23 +726,28 @@ fn solve_iterative(
             result.iterations,
             &result.residual_history,
             result.relative_residual,
+            shown.vectors,
         );
         println!("{o}");
     } else {
         print!("{}", human(&problem, solution));
         println!(
-            "  iterations  {} (MINRES); true relative residual ‖rhs−Kz‖₂/‖rhs‖₂ {:.2e}",
-            result.iterations, result.relative_residual
+            "  iterations  {} (MINRES); true relative residual ‖rhs−Kz‖₂/‖rhs‖₂ {}",
+            result.iterations,
+            tangency::report::num(result.relative_residual, 3)
         );
         println!("  not verified: inertia of K and the kind of stationary point (minimizer or saddle)");
+        print_written(shown);
     }
     ExitCode::SUCCESS
 }
 
 /// `solve --method pcg`: projected CG (inertia not observed; the verdict is `saddle` only
 /// when a direction of negative curvature proved it).
-fn solve_pcg(dir: &std::path::Path, tol: f64, max_iter: usize, out: Option<&std::path::Path>, json: bool) -> ExitCode {
+fn solve_pcg(dir: &std::path::Path, tol: f64, max_iter: usize, shown: Shown<'_>) -> ExitCode {
     use tangency::iterative::{pcg, PcgOptions, PcgStatus};
+    use tangency::report::num;
+    let json = shown.json;
     let fail = |err: Error, sizes: Option<(usize, usize)>| fail_iterative(err, sizes, "pcg", json);
     let problem = match io::read_problem_dir(dir) {
         Ok(p) => p,
@@ -570,11 +764,8 @@ fn solve_pcg(dir: &std::path::Path, tol: f64, max_iter: usize, out: Option<&std:
         Err(e) => return fail(e, sizes),
     };
     let solution = &result.solution;
-    if let Some(out) = out {
-        let written = write_pair(out, ("x.mtx", &solution.x), ("multipliers.mtx", &solution.y));
-        if let Err(e) = written {
-            return fail(e, sizes);
-        }
+    if let Err(e) = write_solution(shown, solution) {
+        return fail(e, sizes);
     }
     let max_feas = result.feasibility_history.iter().fold(0.0f64, |a, v| a.max(*v));
     let curvature = match &result.status {
@@ -588,6 +779,7 @@ fn solve_pcg(dir: &std::path::Path, tol: f64, max_iter: usize, out: Option<&std:
             result.iterations,
             &result.residual_history,
             result.relative_residual,
+            shown.vectors,
         );
         o.set("max_iterate_infeasibility", max_feas);
         o.set("minres_iterations", result.minres_iterations);
@@ -596,24 +788,31 @@ fn solve_pcg(dir: &std::path::Path, tol: f64, max_iter: usize, out: Option<&std:
     } else {
         print!("{}", human(&problem, solution));
         println!(
-            "  iterations  {} (projected CG){}; true relative residual ‖rhs−Kz‖₂/‖rhs‖₂ {:.2e}",
+            "  iterations  {} (projected CG){}; true relative residual ‖rhs−Kz‖₂/‖rhs‖₂ {}",
             result.iterations,
             if result.minres_iterations > 0 {
                 format!(" + {} (MINRES)", result.minres_iterations)
             } else {
                 String::new()
             },
-            result.relative_residual
+            num(result.relative_residual, 3)
         );
-        println!("  verified    every CG iterate feasible: max ‖Ax_k−b‖∞ = {max_feas:.1e}");
+        println!(
+            "  verified    every CG iterate feasible: max ‖Ax_k−b‖∞ = {}",
+            num(max_feas, 2)
+        );
         match curvature {
             None => {
                 println!("  not verified: inertia of K and convexity (positive curvature along the CG directions only)")
             }
             Some(k) => {
-                println!("  curvature   a feasible direction with pᵀHp/‖p‖² = {k:.2e} was found: no unique minimizer")
+                println!(
+                    "  curvature   a feasible direction with pᵀHp/‖p‖² = {} was found: no unique minimizer",
+                    num(k, 3)
+                )
             }
         }
+        print_written(shown);
     }
     ExitCode::SUCCESS
 }
@@ -642,13 +841,9 @@ fn refuse_iterative_with_inequalities(dir: &std::path::Path, method: &str, json:
 /// `solve` of a directory with inequality files: the interior-point method, its JSON (the
 /// keys of `tangency::inequality::report::solution_json`) and, with `--out`, `x.mtx`,
 /// `multipliers.mtx`, `inequality_multipliers.mtx` and `bound_multipliers.mtx`.
-fn solve_inequalities(
-    q: &tangency::inequality::InequalityProblem,
-    options: &Options,
-    out: Option<&std::path::Path>,
-    json: bool,
-) -> ExitCode {
+fn solve_inequalities(q: &tangency::inequality::InequalityProblem, options: &Options, shown: Shown<'_>) -> ExitCode {
     use tangency::inequality::{report, InteriorPoint, InteriorPointOptions};
+    let Shown { out, json, vectors } = shown;
     let fail = |err: Error| {
         if json {
             let mut o = error_json(&err, Some((q.n(), q.m())), Some("interior-point"), None);
@@ -675,7 +870,25 @@ fn solve_inequalities(
         }
     }
     if json {
-        println!("{}", report::solution_json(q, &solution));
+        let mut o = report::solution_json(q, &solution);
+        // The same size limit as the equality-constrained JSON, for all four vectors at once.
+        let (z, w) = (&solution.z[..], &solution.w[..]);
+        let total = [solution.x.len(), solution.y.len(), z.len(), w.len()]
+            .iter()
+            .sum::<usize>();
+        tangency::report::set_vectors(
+            &mut o,
+            &solution.x,
+            &solution.y,
+            vectors.saturating_sub(total - solution.x.len() - solution.y.len()),
+        );
+        if total <= vectors {
+            o.set("inequality_multipliers", z).set("bound_multipliers", w);
+        } else {
+            o.set("inequality_multipliers", Json::Null)
+                .set("bound_multipliers", Json::Null);
+        }
+        println!("{o}");
     } else {
         print!("{}", report::human(q, &solution));
     }

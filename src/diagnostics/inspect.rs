@@ -81,6 +81,9 @@ pub struct Inspection {
     pub method: String,
     /// The prediction in words.
     pub diagnosis: String,
+    /// `Some(status)` (`"infeasible"` or `"unbounded"`) when the analysis proved that the
+    /// problem has no solution; the diagnosis then states the finding.
+    pub no_solution: Option<&'static str>,
 }
 
 /// Inspects a validated problem: one factorization with `options` (falling back to the
@@ -111,6 +114,7 @@ pub fn inspect(problem: &Problem, options: &Options) -> Result<Inspection> {
     let cond = condition::estimate(&f);
     let inertia = f.inertia();
     let regularized_pivots = f.backend().regularized_pivots();
+    let mut no_solution = None;
     let (verdict, diagnosis) = match f.verdict() {
         Ok(Some(v)) => (Some(v), v.explain().to_string()),
         Ok(None) if regularized_pivots > 0 => (
@@ -122,7 +126,12 @@ pub fn inspect(problem: &Problem, options: &Options) -> Result<Inspection> {
         Ok(None) => (None, "this method does not observe the inertia of K".to_string()),
         Err(Error::Singular { .. }) => (None, singular_diagnosis(n, m, &constraints)),
         // Infeasible / unbounded: the diagnosis is the finding itself.
-        Err(e) if e.is_no_solution() => (None, e.to_string()),
+        Err(e) if e.is_no_solution() => {
+            if matches!(e, Error::Infeasible { .. } | Error::Unbounded { .. }) {
+                no_solution = Some(e.status());
+            }
+            (None, e.to_string())
+        }
         Err(e) => return Err(e),
     };
     // A singular K that the rank analysis resolved (dropped redundant rows, a non-unique
@@ -133,6 +142,7 @@ pub fn inspect(problem: &Problem, options: &Options) -> Result<Inspection> {
         }
         _ => diagnosis,
     };
+    let no_solution = no_solution.or((!constraints.consistent).then_some("infeasible"));
     Ok(Inspection {
         n,
         m,
@@ -146,6 +156,7 @@ pub fn inspect(problem: &Problem, options: &Options) -> Result<Inspection> {
         verdict,
         method: f.backend().method().as_str().to_string(),
         diagnosis,
+        no_solution,
     })
 }
 

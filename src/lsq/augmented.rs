@@ -198,7 +198,7 @@ pub(super) fn fit(pr: &LsqProblem, opt: &FitOptions) -> Result<Fit> {
                 let bu = &su.x[..n];
                 let (_, rss_u) = pr.residuals(bu);
                 let increase = (rss - rss_u).max(0.0);
-                out.restriction_test = Some(stats::f_test(rss, increase, rank_c, p - n));
+                out.restriction_test = Some(stats::f_test(rss, increase, rank_c, p - n, p));
             }
             Err(_) => out
                 .notes

@@ -392,17 +392,25 @@ pub(super) fn fit(pr: &LsqProblem, opt: &FitOptions) -> Result<Fit> {
             fac.qc_apply(&mut v);
             let norm = crate::problem::norm2(&v);
             v.iter_mut().for_each(|x| *x /= norm);
-            let big: Vec<String> = largest_entries(&v, 4)
+            let involved = super::report::columns_involved(&v);
+            let shown: Vec<String> = largest_entries(&v, 8)
                 .into_iter()
-                .map(|(j, x)| format!("β[{j}]: {x:+.3}"))
+                .filter(|(j, _)| involved.contains(j))
+                .map(|(j, x)| format!("{} (column {j}): {x:+.3}", pr.names[j]))
                 .collect();
+            let more = if involved.len() > shown.len() {
+                format!(" and {} more", involved.len() - shown.len())
+            } else {
+                String::new()
+            };
             return Err(Error::FitNonUnique {
                 direction: v,
                 detail: format!(
-                    "[F; C] has rank {} < n = {n} (F·δ ≈ 0 and C·δ ≈ 0 along the unit direction δ with largest \
-                     components {}); add restrictions, drop columns, or use a ridge",
+                    "[F; C] has rank {} < n = {n}: the columns {}{more} (0-based) are linearly dependent \
+                     (F·δ ≈ 0 and C·δ ≈ 0 along the unit direction δ with these components); add restrictions, \
+                     drop one of these columns, or use a ridge",
                     r + kk,
-                    big.join(", ")
+                    shown.join(", ")
                 ),
             });
         }
@@ -479,7 +487,7 @@ pub(super) fn fit(pr: &LsqProblem, opt: &FitOptions) -> Result<Fit> {
                     );
                     match free {
                         Ok(free) => {
-                            out.restriction_test = Some(stats::f_test(rss, (rss - free.rss).max(0.0), t.df1, t.df2));
+                            out.restriction_test = Some(stats::f_test(rss, (rss - free.rss).max(0.0), t.df1, t.df2, p));
                         }
                         Err(_) => {
                             out.restriction_test = None;
@@ -684,5 +692,5 @@ fn restriction_test(
     let mut a2 = a[k..].to_vec();
     bq.reflectors().apply_t_vec(&mut a2);
     let drss: f64 = a2[..r].iter().map(|x| x * x).sum();
-    Some(stats::f_test(rss, drss, r, p - n))
+    Some(stats::f_test(rss, drss, r, p - n, p))
 }

@@ -67,10 +67,13 @@
 
 mod augmented;
 mod dense;
+pub mod inference;
+pub mod input;
 pub mod io;
 pub mod refine;
 pub mod report;
-mod stats;
+pub mod restrict;
+pub mod stats;
 
 use std::fmt;
 
@@ -243,6 +246,8 @@ pub struct LsqBuilder {
     d: Option<Vec<f64>>,
     w: Option<Vec<f64>>,
     ridge: f64,
+    names: Option<Vec<String>>,
+    equations: Option<String>,
 }
 
 impl LsqBuilder {
@@ -337,21 +342,90 @@ impl LsqBuilder {
         self
     }
 
+    /// Names of the coefficients (length n; non-empty, distinct, each a name of the
+    /// [restriction syntax](restrict)). Default: `b0`, `b1`, … (the 0-based column index).
+    pub fn coefficient_names<S: AsRef<str>>(mut self, names: &[S]) -> Self {
+        self.names = Some(names.iter().map(|s| s.as_ref().to_string()).collect());
+        self
+    }
+
+    /// Restrictions written against the coefficient names, one per line (see
+    /// [`restrict`] for the syntax), instead of `C` and `d`.
+    ///
+    /// ```
+    /// use tangency::lsq::{FitOptions, LsqBuilder};
+    /// let fit = LsqBuilder::new()
+    ///     .design_row_major(3, 2, &[1.0, 0.0, 0.0, 1.0, 1.0, 1.0])
+    ///     .observations(&[1.0, 2.0, 2.5])
+    ///     .coefficient_names(&["level", "slope"])
+    ///     .restriction_equations("level + slope = 3")
+    ///     .build()?
+    ///     .fit(&FitOptions::default())?;
+    /// assert!((fit.coefficients[0] + fit.coefficients[1] - 3.0).abs() < 1e-14);
+    /// # Ok::<(), tangency::Error>(())
+    /// ```
+    pub fn restriction_equations(mut self, text: &str) -> Self {
+        self.equations = Some(text.to_string());
+        self
+    }
+
     /// Validates every block and returns the problem. Checks, in order: `F` given, in
     /// range and finite; `g` given with length p, finite; `C` with n columns, in range,
     /// finite; `d` of length q, finite; `w` of length p, finite and positive; `λ` finite
     /// and non-negative.
-    pub fn build(self) -> Result<LsqProblem> {
+    pub fn build(mut self) -> Result<LsqProblem> {
         let design = self
             .design
             .ok_or_else(|| input_err(FitBlock::F, None, None, "no design matrix given"))?;
         let f = design.into_matrix(FitBlock::F)?;
         let (p, n) = (f.nrows(), f.ncols());
+        let names = match self.names {
+            None => (0..n).map(|j| format!("b{j}")).collect(),
+            Some(names) => {
+                check_names(&names, n)?;
+                names
+            }
+        };
+        let restrictions = match (self.restrictions, self.equations) {
+            (Some(_), Some(_)) => {
+                return Err(input_err(
+                    FitBlock::C,
+                    None,
+                    None,
+                    "give the restrictions either as C (and d) or as equations, not both",
+                ))
+            }
+            (r, None) => r,
+            (None, Some(text)) => {
+                if self.d.is_some() {
+                    return Err(input_err(
+                        FitBlock::D,
+                        None,
+                        None,
+                        "restriction equations carry their own right-hand sides: do not give d as well",
+                    ));
+                }
+                let parsed = restrict::parse(&text, &names)?;
+                let q = parsed.len();
+                let mut entries = Vec::new();
+                let mut d = Vec::with_capacity(q);
+                for (i, r) in parsed.iter().enumerate() {
+                    entries.extend(r.terms.iter().map(|&(j, v)| (i, j, v)));
+                    d.push(r.rhs);
+                }
+                self.d = Some(d);
+                let mut dense = Mat::<f64>::zeros(q, n);
+                for (i, j, v) in entries {
+                    dense[(i, j)] = v;
+                }
+                Some(Input::Dense(dense))
+            }
+        };
         let g = self
             .g
             .ok_or_else(|| input_err(FitBlock::G, None, None, "no observations given"))?;
         check_vec(FitBlock::G, &g, p, "p (rows of F)")?;
-        let c = match self.restrictions {
+        let c = match restrictions {
             None => Matrix::Dense(Mat::zeros(0, n)),
             Some(input) => {
                 let (rows, cols) = input.shape();
@@ -395,8 +469,45 @@ impl LsqBuilder {
             d,
             w: self.w,
             ridge: self.ridge,
+            names,
         })
     }
+}
+
+fn check_names(names: &[String], n: usize) -> Result<()> {
+    if names.len() != n {
+        return Err(input_err(
+            FitBlock::F,
+            None,
+            None,
+            format!("{} coefficient name(s) given for {n} column(s) of F", names.len()),
+        ));
+    }
+    for (j, name) in names.iter().enumerate() {
+        let mut chars = name.chars();
+        let ok = chars.next().is_some_and(|c| c.is_alphabetic() || c == '_')
+            && chars.all(|c| c.is_alphanumeric() || c == '_' || c == '.');
+        if !ok {
+            return Err(input_err(
+                FitBlock::F,
+                None,
+                Some(j),
+                format!(
+                    "coefficient name '{name}' of column {j} (0-based) is not a name of the restriction syntax \
+                     (a letter or '_', then letters, digits, '_' or '.')"
+                ),
+            ));
+        }
+        if let Some(k) = names[..j].iter().position(|o| o == name) {
+            return Err(input_err(
+                FitBlock::F,
+                None,
+                Some(j),
+                format!("coefficient name '{name}' is used for columns {k} and {j} (0-based)"),
+            ));
+        }
+    }
+    Ok(())
 }
 
 fn check_vec(block: FitBlock, v: &[f64], expected: usize, what: &str) -> Result<()> {
@@ -423,6 +534,7 @@ pub struct LsqProblem {
     pub(crate) d: Vec<f64>,
     pub(crate) w: Option<Vec<f64>>,
     pub(crate) ridge: f64,
+    pub(crate) names: Vec<String>,
 }
 
 impl LsqProblem {
@@ -461,6 +573,25 @@ impl LsqProblem {
     /// The ridge parameter.
     pub fn ridge(&self) -> f64 {
         self.ridge
+    }
+    /// The coefficient names (given, or `b0`, `b1`, …).
+    pub fn names(&self) -> &[String] {
+        &self.names
+    }
+    /// The same problem with another ridge parameter `λ ≥ 0`.
+    pub fn with_ridge(&self, lambda: f64) -> Result<LsqProblem> {
+        if !(lambda.is_finite() && lambda >= 0.0) {
+            return Err(input_err(
+                FitBlock::Ridge,
+                None,
+                None,
+                format!("λ = {lambda} must be finite and non-negative"),
+            ));
+        }
+        Ok(LsqProblem {
+            ridge: lambda,
+            ..self.clone()
+        })
     }
 
     /// Fits with the given options.

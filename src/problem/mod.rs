@@ -7,6 +7,7 @@
 
 mod builder;
 mod storage;
+mod values;
 
 pub use builder::{HasHessian, NoHessian, ProblemBuilder, Triangle, DEFAULT_SYMMETRY_TOLERANCE};
 pub use storage::Matrix;

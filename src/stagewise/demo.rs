@@ -17,7 +17,7 @@ use std::time::Instant;
 
 use faer::Mat;
 
-use super::HorizonBuilder;
+use super::{HorizonBuilder, StageVectors};
 use crate::error::Result;
 use crate::solution::Solution;
 use crate::solver::{Factorization, Method, Options, Plan};
@@ -155,8 +155,8 @@ pub fn run_loop(steps: usize, horizon: usize) -> Result<ControlRun> {
     let factor_seconds = t0.elapsed().as_secs_f64();
     let mut ws = f.workspace();
     let mut sol = Solution::empty(problem.n(), problem.m(), f.plan().method());
-    let mut c = problem.linear().to_vec();
-    let mut bvec = problem.rhs().to_vec();
+    // The per-step data (initial state, reference preview) written by stage.
+    let mut data = StageVectors::new(&h);
     let mut x = [0.0f64; 4];
     let mut run = ControlRun {
         position: Vec::with_capacity(steps),
@@ -170,25 +170,17 @@ pub fn run_loop(steps: usize, horizon: usize) -> Result<ControlRun> {
         "  step   time   ref p2     p1       p2     |error|   u1       u2      solve µs"
     );
     for t in 0..steps {
-        // Reference preview over the horizon: q_k = −Q x_ref, r_k = −R u_ref.
+        // Reference preview over the horizon: each stage tracks the target of its time.
         for k in 0..=horizon {
             let (xr, ur) = target(reference(t + k));
-            let xo = dims.x_offset(k);
-            for i in 0..4 {
-                c[xo + i] = -q[(i, i)] * xr[i] * if k == horizon { 10.0 } else { 1.0 };
-            }
-            if k < horizon {
-                let uo = dims.u_offset(k);
-                for i in 0..2 {
-                    c[uo + i] = -r[(i, i)] * ur[i];
-                }
-            }
+            data.track(k, &xr, (k < horizon).then_some(&ur[..]))?;
         }
-        bvec[..4].copy_from_slice(&x);
+        data.set_initial_state(&x)?;
         let ts = Instant::now();
-        f.solve_into(&c, &bvec, &mut ws, &mut sol)?;
+        f.solve_into(data.linear(), data.rhs(), &mut ws, &mut sol)?;
         let secs = ts.elapsed().as_secs_f64();
-        let u = [sol.x[4], sol.x[5]];
+        let u0 = dims.input(&sol.x, 0);
+        let u = [u0[0], u0[1]];
         // A force pulse of our own on mass 1 (steps 120–129) that the model does not know.
         let gust = if (120..130).contains(&t) { 1.0 } else { 0.0 };
         let mut next = [0.0f64; 4];

@@ -45,6 +45,7 @@ pub mod demo;
 mod horizon;
 mod riccati;
 mod structure;
+mod vectors;
 
 use std::fmt;
 use std::str::FromStr;
@@ -52,6 +53,7 @@ use std::str::FromStr;
 pub use horizon::{HasCost, HasDynamics, Horizon, HorizonBuilder, NoCost, NoDynamics};
 pub use riccati::RiccatiBackend;
 pub use structure::StageStructure;
+pub use vectors::StageVectors;
 
 use crate::error::{Error, Result};
 

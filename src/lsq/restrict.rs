@@ -1,0 +1,325 @@
+//! Restrictions written against coefficient names: a small equation syntax of our own.
+//!
+//! One restriction per line (or separated by `;`). Each is a linear equation in the
+//! coefficient names with numeric constants:
+//!
+//! ```text
+//! x1 + x2 = 1
+//! 2*x3 - x4 = 0
+//! gnp = 0.5 * deflator - 3     # a comment runs to the end of the line
+//! ```
+//!
+//! * a term is `NUMBER`, `NAME`, `NUMBER*NAME` or `NUMBER NAME` (`2 x3`), joined by `+` or
+//!   `-`; a leading sign is allowed on each side;
+//! * names start with a letter or `_` and continue with letters, digits, `_` or `.`; numbers
+//!   are decimal with an optional exponent (`1e-3`, `.5`);
+//! * a name may appear more than once and on both sides (its coefficients are added);
+//! * blank lines and text after `#` are ignored; every equation needs exactly one `=` and at
+//!   least one name with a nonzero total coefficient.
+//!
+//! Errors name the restriction by its 1-based line and the 1-based character where the
+//! trouble starts.
+
+use crate::error::{Error, Result};
+
+use super::FitBlock;
+
+/// One parsed restriction: `Σ coef·β[index] = rhs`, with the 1-based line it came from.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Restriction {
+    /// `(coefficient index, factor)`, indices increasing, no zero factors.
+    pub terms: Vec<(usize, f64)>,
+    /// The constant on the right after moving every constant there.
+    pub rhs: f64,
+    /// The 1-based line of the text (or `;`-separated item number on one line).
+    pub line: usize,
+}
+
+fn err(line: usize, column: usize, detail: impl Into<String>) -> Error {
+    Error::FitInput {
+        block: FitBlock::C,
+        row: None,
+        col: None,
+        detail: format!(
+            "restriction on line {line}, character {column} (both 1-based): {}",
+            detail.into()
+        ),
+    }
+}
+
+#[derive(Clone, Debug, PartialEq)]
+enum Tok {
+    Num(f64),
+    Name(String),
+    Plus,
+    Minus,
+    Star,
+    Eq,
+}
+
+fn lex(text: &str, line: usize) -> Result<Vec<(Tok, usize)>> {
+    let chars: Vec<char> = text.chars().collect();
+    let mut out = Vec::new();
+    let mut i = 0;
+    while i < chars.len() {
+        let c = chars[i];
+        let col = i + 1;
+        if c.is_whitespace() {
+            i += 1;
+        } else if c == '+' {
+            out.push((Tok::Plus, col));
+            i += 1;
+        } else if c == '-' || c == '−' {
+            out.push((Tok::Minus, col));
+            i += 1;
+        } else if c == '*' || c == '·' {
+            out.push((Tok::Star, col));
+            i += 1;
+        } else if c == '=' {
+            out.push((Tok::Eq, col));
+            i += 1;
+        } else if c.is_ascii_digit() || c == '.' {
+            let start = i;
+            while i < chars.len() && (chars[i].is_ascii_digit() || chars[i] == '.') {
+                i += 1;
+            }
+            if i < chars.len() && (chars[i] == 'e' || chars[i] == 'E') {
+                let mut j = i + 1;
+                if j < chars.len() && (chars[j] == '+' || chars[j] == '-') {
+                    j += 1;
+                }
+                if j < chars.len() && chars[j].is_ascii_digit() {
+                    i = j;
+                    while i < chars.len() && chars[i].is_ascii_digit() {
+                        i += 1;
+                    }
+                }
+            }
+            let s: String = chars[start..i].iter().collect();
+            let v: f64 = s
+                .parse()
+                .map_err(|_| err(line, col, format!("'{s}' is not a number")))?;
+            if !v.is_finite() {
+                return Err(err(line, col, format!("'{s}' is not a finite number")));
+            }
+            out.push((Tok::Num(v), col));
+        } else if c.is_alphabetic() || c == '_' {
+            let start = i;
+            while i < chars.len() && (chars[i].is_alphanumeric() || chars[i] == '_' || chars[i] == '.') {
+                i += 1;
+            }
+            out.push((Tok::Name(chars[start..i].iter().collect()), col));
+        } else {
+            return Err(err(line, col, format!("unexpected character '{c}'")));
+        }
+    }
+    Ok(out)
+}
+
+/// Parses one side into `(name coefficients, constant)`, each term multiplied by `sign`.
+fn side(
+    toks: &[(Tok, usize)],
+    names: &[String],
+    line: usize,
+    end_col: usize,
+    sign: f64,
+    coef: &mut [f64],
+    constant: &mut f64,
+) -> Result<()> {
+    if toks.is_empty() {
+        return Err(err(line, end_col, "an equation side is empty"));
+    }
+    let mut k = 0;
+    let mut first = true;
+    while k < toks.len() {
+        let mut s = sign;
+        // Signs (a leading one on the first term, one or more between terms).
+        let mut saw_sign = false;
+        while k < toks.len() && matches!(toks[k].0, Tok::Plus | Tok::Minus) {
+            if toks[k].0 == Tok::Minus {
+                s = -s;
+            }
+            saw_sign = true;
+            k += 1;
+        }
+        if !first && !saw_sign {
+            return Err(err(line, toks[k].1, "expected '+' or '-' between terms"));
+        }
+        first = false;
+        let Some((tok, col)) = toks.get(k) else {
+            return Err(err(line, end_col, "a term is missing after the sign"));
+        };
+        match tok {
+            Tok::Num(v) => {
+                k += 1;
+                let mut factor = *v;
+                // NUMBER [*] NAME, or a bare constant.
+                let star = matches!(toks.get(k), Some((Tok::Star, _)));
+                if star {
+                    k += 1;
+                }
+                match toks.get(k) {
+                    Some((Tok::Name(n), ncol)) => {
+                        let j = lookup(names, n, line, *ncol)?;
+                        k += 1;
+                        // NUMBER*NAME*NUMBER is not allowed: keep the grammar small.
+                        if matches!(toks.get(k), Some((Tok::Star, _))) {
+                            return Err(err(line, toks[k].1, "write a term as NUMBER*NAME"));
+                        }
+                        factor *= s;
+                        coef[j] += factor;
+                    }
+                    _ if star => {
+                        return Err(err(line, *col, "'*' must be followed by a coefficient name"));
+                    }
+                    _ => *constant += s * factor,
+                }
+            }
+            Tok::Name(n) => {
+                let j = lookup(names, n, line, *col)?;
+                k += 1;
+                let mut factor = 1.0;
+                if matches!(toks.get(k), Some((Tok::Star, _))) {
+                    k += 1;
+                    match toks.get(k) {
+                        Some((Tok::Num(v), _)) => {
+                            factor = *v;
+                            k += 1;
+                        }
+                        _ => return Err(err(line, *col, "'NAME*' must be followed by a number")),
+                    }
+                }
+                coef[j] += s * factor;
+            }
+            Tok::Star => return Err(err(line, *col, "'*' without a number before it")),
+            Tok::Eq => return Err(err(line, *col, "more than one '='")),
+            Tok::Plus | Tok::Minus => unreachable!("signs were consumed above"),
+        }
+    }
+    Ok(())
+}
+
+fn lookup(names: &[String], name: &str, line: usize, col: usize) -> Result<usize> {
+    names.iter().position(|n| n == name).ok_or_else(|| {
+        let known: Vec<&str> = names.iter().take(12).map(String::as_str).collect();
+        let more = if names.len() > 12 { ", …" } else { "" };
+        err(
+            line,
+            col,
+            format!("unknown coefficient '{name}' (known: {}{more})", known.join(", ")),
+        )
+    })
+}
+
+/// Parses restrictions (see the [module docs](self)) against the coefficient `names`.
+///
+/// ```
+/// use tangency::lsq::restrict::parse;
+/// let names: Vec<String> = ["x1", "x2", "x3", "x4"].iter().map(|s| s.to_string()).collect();
+/// let r = parse("x1 + x2 = 1\n2*x3 - x4 = 0  # a comment", &names)?;
+/// assert_eq!(r[0].terms, vec![(0, 1.0), (1, 1.0)]);
+/// assert_eq!(r[0].rhs, 1.0);
+/// assert_eq!(r[1].terms, vec![(2, 2.0), (3, -1.0)]);
+/// let e = parse("x1 + y = 1", &names).unwrap_err().to_string();
+/// assert!(e.contains("unknown coefficient 'y'") && e.contains("line 1, character 6"), "{e}");
+/// # Ok::<(), tangency::Error>(())
+/// ```
+pub fn parse(text: &str, names: &[String]) -> Result<Vec<Restriction>> {
+    let mut out = Vec::new();
+    for (lineno, raw) in text.lines().enumerate() {
+        let line = lineno + 1;
+        let content = raw.split('#').next().unwrap_or("");
+        let mut offset = 0;
+        for item in content.split(';') {
+            let item_offset = offset;
+            offset += item.chars().count() + 1;
+            if item.trim().is_empty() {
+                continue;
+            }
+            let mut toks = lex(item, line)?;
+            for t in &mut toks {
+                t.1 += item_offset;
+            }
+            let end_col = item_offset + item.chars().count() + 1;
+            let eqs: Vec<usize> = toks
+                .iter()
+                .enumerate()
+                .filter(|(_, t)| t.0 == Tok::Eq)
+                .map(|(k, _)| k)
+                .collect();
+            if eqs.is_empty() {
+                return Err(err(line, item_offset + 1, "a restriction needs '='"));
+            }
+            if eqs.len() > 1 {
+                return Err(err(line, toks[eqs[1]].1, "more than one '='"));
+            }
+            let (lhs, rhs) = (&toks[..eqs[0]], &toks[eqs[0] + 1..]);
+            let mut coef = vec![0.0; names.len()];
+            let mut constant = 0.0;
+            side(lhs, names, line, toks[eqs[0]].1, 1.0, &mut coef, &mut constant)?;
+            side(rhs, names, line, end_col, -1.0, &mut coef, &mut constant)?;
+            let terms: Vec<(usize, f64)> = coef
+                .iter()
+                .enumerate()
+                .filter(|(_, c)| **c != 0.0)
+                .map(|(j, c)| (j, *c))
+                .collect();
+            if terms.is_empty() {
+                return Err(err(
+                    line,
+                    item_offset + 1,
+                    "no coefficient is left in the equation (every name cancels)",
+                ));
+            }
+            out.push(Restriction {
+                terms,
+                rhs: -constant,
+                line,
+            });
+        }
+    }
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn names() -> Vec<String> {
+        ["a", "b", "c.d", "_e"].iter().map(|s| s.to_string()).collect()
+    }
+
+    #[test]
+    fn forms_of_terms_and_sides() {
+        let r = parse("-a + 2 b - 3*c.d = 0.5*_e - 4; a = b", &names()).unwrap();
+        assert_eq!(r.len(), 2);
+        assert_eq!(r[0].terms, vec![(0, -1.0), (1, 2.0), (2, -3.0), (3, -0.5)]);
+        assert_eq!(r[0].rhs, -4.0);
+        assert_eq!(r[1].terms, vec![(0, 1.0), (1, -1.0)]);
+        assert_eq!(r[1].rhs, 0.0);
+        let r = parse("a*2 + 1e-3 = b - -1", &names()).unwrap();
+        assert_eq!(r[0].terms, vec![(0, 2.0), (1, -1.0)]);
+        assert!((r[0].rhs - (1.0 - 1e-3)).abs() < 1e-15);
+    }
+
+    #[test]
+    fn errors_say_where() {
+        let cases = [
+            ("a + b", "needs '='"),
+            ("a = b = c.d", "more than one '='"),
+            ("a b = 1", "expected '+' or '-'"),
+            ("a - a = 1", "every name cancels"),
+            ("= 1", "side is empty"),
+            ("a + = 1", "term is missing"),
+            ("2 * = a", "followed by a coefficient name"),
+            ("a ? b = 1", "unexpected character '?'"),
+        ];
+        for (text, want) in cases {
+            let e = parse(text, &names()).unwrap_err().to_string();
+            assert!(e.contains(want), "{text}: {e}");
+            assert!(e.contains("line 1"), "{text}: {e}");
+        }
+        let e = parse("a = 1\n\n b + q = 0", &names()).unwrap_err().to_string();
+        assert!(e.contains("line 3, character 6"), "{e}");
+    }
+}
