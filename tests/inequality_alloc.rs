@@ -14,10 +14,20 @@ struct Counting;
 static COUNTING: AtomicBool = AtomicBool::new(false);
 static ALLOCATIONS: AtomicUsize = AtomicUsize::new(0);
 
+thread_local! {
+    // Only the test's own thread is counted: the harness's other threads (output capture,
+    // timeout watch) were seen to allocate under load.
+    static THIS_THREAD: std::cell::Cell<bool> = const { std::cell::Cell::new(false) };
+}
+
+fn counted() -> bool {
+    COUNTING.load(Ordering::SeqCst) && THIS_THREAD.with(|t| t.get())
+}
+
 // SAFETY: forwards every call unchanged to the system allocator; only counts.
 unsafe impl GlobalAlloc for Counting {
     unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
-        if COUNTING.load(Ordering::SeqCst) {
+        if counted() {
             ALLOCATIONS.fetch_add(1, Ordering::SeqCst);
         }
         System.alloc(layout)
@@ -26,13 +36,13 @@ unsafe impl GlobalAlloc for Counting {
         System.dealloc(ptr, layout)
     }
     unsafe fn alloc_zeroed(&self, layout: Layout) -> *mut u8 {
-        if COUNTING.load(Ordering::SeqCst) {
+        if counted() {
             ALLOCATIONS.fetch_add(1, Ordering::SeqCst);
         }
         System.alloc_zeroed(layout)
     }
     unsafe fn realloc(&self, ptr: *mut u8, layout: Layout, new_size: usize) -> *mut u8 {
-        if COUNTING.load(Ordering::SeqCst) {
+        if counted() {
             ALLOCATIONS.fetch_add(1, Ordering::SeqCst);
         }
         System.realloc(ptr, layout, new_size)
@@ -67,6 +77,7 @@ fn warm_started_control_loop_allocates_nothing() {
     for t in 0..12 {
         if t == 4 {
             ALLOCATIONS.store(0, Ordering::SeqCst);
+            THIS_THREAD.with(|t| t.set(true));
             COUNTING.store(true, Ordering::SeqCst);
         }
         bh.problem.set_rhs_range(0, &x).unwrap();
