@@ -21,11 +21,14 @@
 //!
 //! **Threads.** faer's blocked LBLᵀ alternates a panel step (one column at a time,
 //! matrix-vector products and pivot searches: sequential in effect) with a parallel
-//! rank-`b` update of the trailing matrix. Called from outside the rayon pool, the caller
-//! thread runs the panels while the pool's threads spin between parallel regions (spindle's
-//! spin barrier), so on two cores three threads compete and the second core is a loss.
-//! Run from inside the pool (see [`run_in_pool`]), the caller is one of the pool's threads
-//! and the contention disappears.
+//! rank-`b` update of the trailing matrix. Suspected cause of the missing two-core gain (not
+//! yet confirmed on a quiet machine): called from outside the rayon pool, the caller runs
+//! the panels while the pool's threads spin between parallel regions (spindle's spin
+//! barrier), so three threads compete for two cores. [`run_in_pool`] runs the factorization
+//! on a pool thread instead; `examples/lblt_threads.rs` compares both, and block sizes 32 to
+//! 256. Under load 9 (N = 2000) neither variant beat the sequential factorization, and block
+//! 256 was the fastest sequential one (0.49 s against 0.92 s at faer's default 64): to be
+//! re-measured quiet before any default changes.
 
 use faer::diag::Diag;
 use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
