@@ -21,6 +21,8 @@
 //! ```text
 //! FUZZ_CASES=100000 FUZZ_SEED=1 nice -n 19 cargo test --release --test fuzz_cli -- --ignored --nocapture
 //! ```
+//!
+//! (`FUZZ_BIN=path` runs a copy of the binary instead of the one cargo built.)
 
 use std::fmt::Write as _;
 use std::path::Path;
@@ -68,14 +70,19 @@ struct Case {
     log: Vec<String>,
     /// Files that the last mutation of each made invalid for certain.
     invalid_files: Vec<&'static str>,
+    /// Files mutated so far (a second mutation of a file may repair the first: its
+    /// validity is then unknown, unless the mutation replaces the file's kind).
+    mutated: Vec<&'static str>,
 }
 
 impl Case {
-    fn mark(&mut self, name: &'static str, invalid: bool) {
+    fn mark(&mut self, name: &'static str, invalid: bool, whole_file: bool) {
+        let again = self.mutated.contains(&name);
         self.invalid_files.retain(|f| *f != name);
-        if invalid {
+        if invalid && (whole_file || !again) {
             self.invalid_files.push(name);
         }
+        self.mutated.push(name);
     }
 }
 
@@ -269,7 +276,8 @@ fn mutate(rng: &mut Rng, case: &mut Case) {
             } else {
                 toks.insert(t, toks[t].clone());
             }
-            invalid = true;
+            // A line left empty is skipped like a blank line, so not invalid by itself.
+            invalid = !toks.is_empty();
             lines[l] = toks.join(" ");
             format!("line {} tokens -> {:?}", l + 1, lines[l])
         }
@@ -351,7 +359,7 @@ fn mutate(rng: &mut Rng, case: &mut Case) {
                 _ => (File::LinkTo(text.clone()), false),
             };
             case.log.push(format!("{name}: kind -> {f:?}"));
-            case.mark(name, bad);
+            case.mark(name, bad, true);
             case.files[k].1 = f;
             return;
         }
@@ -394,7 +402,7 @@ fn mutate(rng: &mut Rng, case: &mut Case) {
         10 => {
             // Remove the file (H is required; the others have defaults).
             case.log.push(format!("{name}: removed"));
-            case.mark(name, name == "H.mtx");
+            case.mark(name, name == "H.mtx", true);
             case.files.remove(k);
             return;
         }
@@ -442,7 +450,7 @@ fn mutate(rng: &mut Rng, case: &mut Case) {
     let mut new_text = lines.join("\n");
     new_text.push('\n');
     case.files[k].1 = File::Text(new_text);
-    case.mark(name, invalid);
+    case.mark(name, invalid, false);
     case.log.push(format!("{name}: {what}"));
 }
 
@@ -478,6 +486,9 @@ fn reference_read(path: &Path) -> Option<(usize, usize, Vec<f64>)> {
     let mut lines = text.lines();
     let banner = lines.next()?.to_ascii_lowercase();
     let w: Vec<&str> = banner.split_whitespace().collect();
+    if w.len() < 5 {
+        return None;
+    }
     let (dense, field, sym) = (w[2] == "array", w[3], w[4]);
     let mut body = lines.filter(|l| !l.trim().is_empty() && !l.starts_with('%'));
     let size: Vec<usize> = body.next()?.split_whitespace().map(|t| t.parse().unwrap()).collect();
@@ -536,6 +547,15 @@ fn check_solution(dir: &Path, out: &Path, j: &serde_json::Value) -> Result<(), S
         None => (0, Vec::new()),
     };
     let b = vec_of("b.mtx", m);
+    if h.len() != n * n || c.len() != n || a.len() != m * n || b.len() != m {
+        return Err(format!(
+            "solved, but the files read here have other sizes: H {} for n = {n}, c {}, A {} for m = {m}, b {}",
+            h.len(),
+            c.len(),
+            a.len(),
+            b.len()
+        ));
+    }
     let x = reference_read(&out.join("x.mtx")).ok_or("x.mtx missing")?.2;
     let y = reference_read(&out.join("multipliers.mtx")).map_or(Vec::new(), |v| v.2);
     if x.len() != n || y.len() != m {
@@ -622,6 +642,7 @@ fn run_case(bin: &str, rng: &mut Rng, stats: &mut [usize; 5]) -> Result<(), Stri
         files: base(rng),
         log: Vec::new(),
         invalid_files: Vec::new(),
+        mutated: Vec::new(),
     };
     for _ in 0..1 + rng.below(3) {
         mutate(rng, &mut case);
@@ -705,7 +726,9 @@ fn run_case(bin: &str, rng: &mut Rng, stats: &mut [usize; 5]) -> Result<(), Stri
 }
 
 fn campaign(cases: usize, seed: u64) {
-    let bin = env!("CARGO_BIN_EXE_tangency");
+    // FUZZ_BIN: a copy of the binary, so that a long run is not disturbed by rebuilds.
+    let bin = std::env::var("FUZZ_BIN").unwrap_or_else(|_| env!("CARGO_BIN_EXE_tangency").to_string());
+    let bin = bin.as_str();
     let mut rng = Rng::new(seed);
     let mut stats = [0usize; 5];
     let mut failures = Vec::new();

@@ -140,7 +140,10 @@ impl RankAnalysis {
     pub fn new(a: MatRef<'_, f64>, factor: f64) -> Self {
         let (m, n) = (a.nrows(), a.ncols());
         let at = a.transpose().to_owned();
-        if m == 0 || n == 0 {
+        // An all-zero A (every row redundant or contradictory) has rank 0 and Q = I; a
+        // Householder QR of zero columns is not needed (and must not produce NaN).
+        let all_zero = (0..m).all(|i| a.row(i).iter().all(|v| *v == 0.0));
+        if m == 0 || n == 0 || all_zero {
             return RankAnalysis {
                 m,
                 n,
@@ -149,7 +152,7 @@ impl RankAnalysis {
                 order: (0..m).collect(),
                 q_basis: Mat::zeros(n, 0),
                 q_coeff: Mat::zeros(1, 0),
-                r: Mat::zeros(0, m),
+                r: Mat::zeros(m.min(n), m),
                 comb: Mat::zeros(0, m),
                 weights: vec![1.0; m],
             };

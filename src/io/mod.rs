@@ -34,7 +34,7 @@ fn read(path: &Path, block: Block) -> Result<Option<Loaded>> {
 fn vector(path: &Path, loaded: Option<Loaded>, block: Block, expected: usize) -> Result<Option<Vec<f64>>> {
     let Some(l) = loaded else { return Ok(None) };
     let (r, c) = (l.nrows, l.ncols);
-    if (c != 1 && r != 1) || r.max(c) != expected || (l.symmetry != Symmetry::General && r * c != 1) {
+    if !((r == expected && c == 1) || (r == 1 && c == expected)) || (l.symmetry != Symmetry::General && r * c != 1) {
         return Err(Error::DimensionMismatch {
             block,
             rows: r,

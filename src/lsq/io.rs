@@ -26,7 +26,7 @@ fn read(path: &Path) -> Result<Option<Loaded>> {
 fn vector(path: &Path, block: FitBlock) -> Result<Option<Vec<f64>>> {
     let Some(l) = read(path)? else { return Ok(None) };
     let (r, c) = (l.nrows, l.ncols);
-    if (c != 1 && r != 1) || (r.max(c) > 1 && l.symmetry != crate::io::Symmetry::General) {
+    if (c != 1 && r != 1) || (r == 0 || c == 0) || (r.max(c) > 1 && l.symmetry != crate::io::Symmetry::General) {
         return Err(Error::FitInput {
             block,
             row: None,
