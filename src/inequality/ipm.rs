@@ -368,7 +368,9 @@ impl InteriorPoint {
             for ((rc, s), z) in v.rc.iter_mut().zip(&v.s).zip(&v.z) {
                 *rc = s * z;
             }
-            self.newton(q)?;
+            if let Err(e) = self.newton(q) {
+                return Err(self.diverged(q, e));
+            }
             let v = &mut self.v;
             let alpha_aff = max_step(&v.s, &v.ds).min(max_step(&v.z, &v.dz));
             let mu_aff = if k > 0 {
@@ -392,7 +394,9 @@ impl InteriorPoint {
             for i in 0..k {
                 v.rc[i] = v.s[i] * v.z[i] + v.ds_aff[i] * v.dz_aff[i] - sigma * mu;
             }
-            self.newton(q)?;
+            if let Err(e) = self.newton(q) {
+                return Err(self.diverged(q, e));
+            }
             let v = &mut self.v;
             let alpha_max = max_step(&v.s, &v.ds).min(max_step(&v.z, &v.dz));
             let tau = opts.step_to_boundary.max(1.0 - mu).min(1.0 - f64::EPSILON);
@@ -496,6 +500,17 @@ impl InteriorPoint {
             certificate: Box::new(cert),
             detail,
         })
+    }
+
+    /// A Newton solve that failed because the iterate left double range (the objective or
+    /// the point overflowed) is read as divergence: when the last accepted direction is a
+    /// verified recession direction of descent the answer is `Unbounded`, else the error
+    /// itself.
+    fn diverged(&mut self, q: &InequalityProblem, e: Error) -> Error {
+        match e {
+            Error::Overflow { .. } => self.unbounded_direction(q).unwrap_or(e),
+            e => e,
+        }
     }
 
     /// The last Newton direction as a certificate of unboundedness, when it is one (checked
