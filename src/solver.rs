@@ -795,7 +795,13 @@ impl Factorization {
         } else {
             "missing (κω ≥ 1)".to_string()
         };
-        if method != MethodUsed::DenseLblt && !singular && dim <= DENSE_FALLBACK_MAX_DIM {
+        // The plan decides, not the backend: a dense plan whose K was rescued by the rank
+        // analysis must not fall back to dense again.
+        if method != MethodUsed::DenseLblt
+            && self.plan.method != MethodUsed::DenseLblt
+            && !singular
+            && dim <= DENSE_FALLBACK_MAX_DIM
+        {
             let opts = Options {
                 method: Method::Dense,
                 ..self.plan.options
