@@ -220,6 +220,29 @@ pub enum Error {
         /// What overflowed, with the figures.
         detail: String,
     },
+    /// A direct solve whose accuracy cannot be certified: its forward-error bound
+    /// ([`Solution::forward_error_bound`](crate::Solution::forward_error_bound)) is missing
+    /// (`κω ≥ 1`) or above the acceptance level, and no fallback could do better (CLI exit
+    /// code 3, status `inaccurate`). Recover by rescaling or regularizing the problem, or
+    /// raise `Options::accept_forward_error` knowingly.
+    #[error(
+        "the computed solution is not certified: {method} gives a forward-error bound {} above the acceptance \
+         level {limit:.1e} (condition estimate κ₁(DKD) ≈ {condition_estimate:.2e}, backward error \
+         {backward_error:.2e}); the KKT matrix is too ill-conditioned for the accuracy asked",
+        bound_words(*forward_error_bound)
+    )]
+    Uncertified {
+        /// The method whose solve was refused (`MethodUsed::as_str`).
+        method: &'static str,
+        /// The bound reached (`+∞` when missing).
+        forward_error_bound: f64,
+        /// `κ₁(DKD)` (`+∞` when a solve overflowed).
+        condition_estimate: f64,
+        /// Normwise backward error on the original K.
+        backward_error: f64,
+        /// Acceptance level (`Options::accept_forward_error`).
+        limit: f64,
+    },
     /// Invalid data for one stage of a horizon (stage-wise) problem; `stage` is `N` for the
     /// terminal blocks and the initial state. Recover by correcting that block.
     #[error("horizon stage {stage}, block {block}: {detail}")]
@@ -415,6 +438,14 @@ pub enum Error {
     },
 }
 
+fn bound_words(bound: f64) -> String {
+    if bound.is_finite() {
+        format!("{bound:.2e}")
+    } else {
+        "that is missing (κω ≥ 1)".to_string()
+    }
+}
+
 fn fit_position(row: Option<usize>, col: Option<usize>) -> String {
     match (row, col) {
         (Some(r), Some(c)) => format!(" at row {r}, column {c} (0-based)"),
@@ -452,6 +483,7 @@ impl Error {
             self,
             Error::Singular { .. }
                 | Error::Inaccurate { .. }
+                | Error::Uncertified { .. }
                 | Error::Infeasible { .. }
                 | Error::Unbounded { .. }
                 | Error::Overflow { .. }
@@ -469,7 +501,8 @@ impl Error {
             return status;
         }
         match self {
-            Error::Singular { .. } | Error::Inaccurate { .. } => "singular",
+            Error::Singular { .. } => "singular",
+            Error::Inaccurate { .. } | Error::Uncertified { .. } => "inaccurate",
             Error::Infeasible { .. } | Error::FitContradictory { .. } => "infeasible",
             Error::Unbounded { .. } => "unbounded",
             Error::FitNonUnique { .. } => "singular",

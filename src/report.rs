@@ -219,6 +219,22 @@ pub fn error_json(err: &Error, sizes: Option<(usize, usize)>, method: Option<&st
             o.set("residual_history_tail", &history_tail[..]);
             o.set("relative_residual", *true_residual);
         }
+        Error::Uncertified {
+            forward_error_bound,
+            condition_estimate,
+            backward_error,
+            ..
+        } => {
+            o.set(
+                "forward_error_bound",
+                forward_error_bound.is_finite().then_some(*forward_error_bound),
+            );
+            o.set(
+                "scaled_condition_estimate",
+                condition_estimate.is_finite().then_some(*condition_estimate),
+            );
+            o.set("backward_error", backward_error.is_finite().then_some(*backward_error));
+        }
         _ => {}
     }
     o

@@ -134,6 +134,7 @@ impl Solution {
             primal_residual: 0.0,
             dual_residual: 0.0,
             backward_error: 0.0,
+            forward_error_bound: None,
             refinement_steps: 0,
             inertia: None,
             verdict: None,
@@ -175,6 +176,14 @@ pub struct Solution {
     /// Normwise backward error of the KKT solve,
     /// `‖r‖∞ / (‖K‖∞‖z‖∞ + ‖rhs‖∞)` with `r = rhs − Kz` on the original (unscaled) K.
     pub backward_error: f64,
+    /// Estimated bound on the relative forward error of the equilibrated solution,
+    /// `‖D⁻¹(z − z*)‖∞ / ‖D⁻¹z*‖∞ ≲ 2κω/(1 − κω)` with `κ = κ₁(DKD)`, `ω` the backward error
+    /// on `DKD` and `D` the Ruiz scaling of K (see [`crate::kkt::equilibrate`] and
+    /// [`crate::diagnostics::condition::forward_error_bound`]). Every direct solve returned
+    /// `Ok` has a bound at most `Options::accept_forward_error`; `None` for the iterative
+    /// methods, whose acceptance is by residual, and for the distributed path (feature
+    /// `mpi`), which is accepted by its backward error and does not estimate κ yet.
+    pub forward_error_bound: Option<f64>,
     /// Iterative refinement corrections applied.
     pub refinement_steps: usize,
     /// Inertia of K, when the method observed it.

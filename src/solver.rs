@@ -70,9 +70,20 @@ pub const NULL_SPACE_RESCUE_MAX_DIM: usize = 6000;
 pub const DEFAULT_MAX_REFINEMENT_STEPS: usize = 10;
 /// Default refinement target for the normwise backward error: `4ε ≈ 8.9e-16`.
 pub const DEFAULT_REFINEMENT_TARGET: f64 = 4.0 * f64::EPSILON;
-/// Default acceptance level: a backward error above `√ε ≈ 1.5e-8` after refinement is
-/// refused with [`Error::Inaccurate`] rather than returned.
+/// Default acceptance level of the backward error for the iterative (MINRES) backend: a
+/// backward error above `√ε ≈ 1.5e-8` after refinement is refused with
+/// [`Error::Inaccurate`] rather than returned. Direct methods are accepted by their
+/// forward-error bound instead ([`DEFAULT_ACCEPT_FORWARD_ERROR`]).
 pub const DEFAULT_ACCEPT_BACKWARD_ERROR: f64 = 1.490_116_119_384_765_6e-8;
+/// Default acceptance level of the forward-error bound of a direct solve: `1e-2`, the
+/// estimated relative error of the equilibrated solution (see [`Solution::forward_error_bound`]).
+/// A solve whose bound is larger, or missing (`κω ≥ 1`), falls back to dense LBLᵀ while
+/// the problem has order at most [`DENSE_FALLBACK_MAX_DIM`] and ends with
+/// [`Error::Uncertified`] otherwise.
+pub const DEFAULT_ACCEPT_FORWARD_ERROR: f64 = 1e-2;
+/// Largest KKT order for which a solve that fails the forward-error rule is repeated with
+/// dense LBLᵀ: 6000 (a dense copy of about 290 MB).
+pub const DENSE_FALLBACK_MAX_DIM: usize = 6000;
 
 /// Settings of the whole pipeline (public fields, `..Default::default()` friendly).
 ///
@@ -98,9 +109,16 @@ pub struct Options {
     /// Stop refining once the backward error is at most this. Default:
     /// [`DEFAULT_REFINEMENT_TARGET`].
     pub refinement_target: f64,
-    /// Refuse solutions whose backward error stays above this. Default:
-    /// [`DEFAULT_ACCEPT_BACKWARD_ERROR`].
+    /// Iterative (MINRES) backend only: refuse solutions whose backward error stays above
+    /// this. Default: [`DEFAULT_ACCEPT_BACKWARD_ERROR`].
     pub accept_backward_error: f64,
+    /// Direct methods: refuse (after the dense fallback) solutions whose forward-error bound
+    /// is above this or missing. Default: [`DEFAULT_ACCEPT_FORWARD_ERROR`].
+    pub accept_forward_error: f64,
+    /// Largest KKT order for which a singular K found by another method is handed to the
+    /// dense null-space rank analysis; larger sparse problems are analyzed with the sparse
+    /// factors (see [`crate::backend::sparse_singular`]). Default: [`NULL_SPACE_RESCUE_MAX_DIM`].
+    pub singular_rescue_max_dim: usize,
     /// Stage dimensions `(nx, nu, N)` for [`Method::Riccati`] (layout in
     /// [`crate::stagewise`]). Default: `None`.
     pub stages: Option<crate::stagewise::StageDims>,
@@ -158,6 +176,8 @@ impl Default for Options {
             max_refinement_steps: DEFAULT_MAX_REFINEMENT_STEPS,
             refinement_target: DEFAULT_REFINEMENT_TARGET,
             accept_backward_error: DEFAULT_ACCEPT_BACKWARD_ERROR,
+            accept_forward_error: DEFAULT_ACCEPT_FORWARD_ERROR,
+            singular_rescue_max_dim: NULL_SPACE_RESCUE_MAX_DIM,
             stages: None,
             memory_budget_bytes: None,
             iterative_tol: crate::iterative::DEFAULT_TOLERANCE,
@@ -268,12 +288,23 @@ impl Plan {
     }
 
     /// Numeric factorization of `problem` (which must have the analyzed structure).
+    ///
+    /// # Errors
+    /// [`Error::StructureChanged`] when `problem` has other sizes than the plan or, for a
+    /// sparse plan, another sparsity pattern (index arrays compared, see
+    /// [`KktPattern::verify`](crate::kkt::sparse::KktPattern::verify)).
     pub fn factor(&self, problem: &Problem) -> Result<Factorization> {
         self.check_structure(problem)?;
+        if let Some(analysis) = &self.sparse {
+            analysis.pattern().verify(problem)?;
+        }
         let t = Instant::now();
         let backend = self.factor_backend(problem)?;
         let factor_s = t.elapsed().as_secs_f64();
-        let mut norm_rows = vec![0.0; kkt::dim(problem)];
+        let dim = kkt::dim(problem);
+        let mut norm_rows = vec![0.0; dim];
+        let (eq, norm_eq) = kkt::equilibrate::ruiz(problem);
+        let kappa = std::sync::Mutex::new(KappaCache::new(dim, backend.solve_scratch(2)));
         Ok(Factorization {
             plan: self.clone(),
             problem: problem.clone(),
@@ -281,6 +312,9 @@ impl Plan {
             norm_rows,
             backend,
             factor_s,
+            eq,
+            norm_eq,
+            kappa,
         })
     }
 
@@ -309,7 +343,7 @@ impl Plan {
         // The rank analysis is dense (column-pivoted QR of Aᵀ): only rescue problems whose
         // dense copy is affordable; larger singular sparse systems keep the plain
         // `Singular` diagnosis.
-        let affordable = kkt::dim(problem) <= NULL_SPACE_RESCUE_MAX_DIM;
+        let affordable = kkt::dim(problem) <= self.options.singular_rescue_max_dim;
         match backend.inertia() {
             Some(i) if i.zero > 0 && backend.method() != MethodUsed::NullSpace && affordable => {
                 let mut notes: Vec<String> = backend.notes().to_vec();
@@ -369,6 +403,47 @@ pub struct Factorization {
     norm_rows: Vec<f64>,
     backend: Box<dyn KktBackend>,
     factor_s: f64,
+    /// Ruiz scaling `D` of K and `‖DKD‖∞`: the norm of the accuracy certificate.
+    eq: Vec<f64>,
+    norm_eq: f64,
+    /// `κ₁(DKD)` estimated once per factorization, at the first solve.
+    kappa: std::sync::Mutex<KappaCache>,
+}
+
+/// The condition estimate behind the forward-error bounds, computed at the first solve after
+/// a factorization with preallocated work vectors (no allocation in the steady state).
+struct KappaCache {
+    value: Option<f64>,
+    scratch: crate::diagnostics::condition::Norm1Scratch,
+    buf: MemBuffer,
+    buf_bytes: usize,
+}
+
+impl std::fmt::Debug for KappaCache {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("KappaCache")
+            .field("value", &self.value)
+            .finish_non_exhaustive()
+    }
+}
+
+impl KappaCache {
+    fn new(dim: usize, req: faer::dyn_stack::StackReq) -> Self {
+        KappaCache {
+            value: None,
+            scratch: crate::diagnostics::condition::Norm1Scratch::new(dim),
+            buf: MemBuffer::new(req),
+            buf_bytes: req.size_bytes(),
+        }
+    }
+
+    fn reset(&mut self, req: faer::dyn_stack::StackReq) {
+        self.value = None;
+        if req.size_bytes() > self.buf_bytes {
+            self.buf = MemBuffer::new(req);
+            self.buf_bytes = req.size_bytes();
+        }
+    }
 }
 
 impl Factorization {
@@ -402,6 +477,78 @@ impl Factorization {
         self.factor_s
     }
 
+    /// `κ₁(DKD)`, the 1-norm condition estimate of the equilibrated K (`D` the Ruiz scaling
+    /// of [`crate::kkt::equilibrate`]) behind every [`Solution::forward_error_bound`]:
+    /// estimated once per factorization from a few solves with the factors (Hager–Higham,
+    /// [`crate::diagnostics::condition`]) and cached. `+∞` when a solve overflowed.
+    pub fn scaled_condition(&self) -> f64 {
+        let mut guard = match self.kappa.lock() {
+            Ok(g) => g,
+            Err(poisoned) => poisoned.into_inner(),
+        };
+        if let Some(v) = guard.value {
+            return v;
+        }
+        let cache = &mut *guard;
+        let req = self.backend.solve_scratch(2);
+        if req.size_bytes() > cache.buf_bytes {
+            cache.buf = MemBuffer::new(req);
+            cache.buf_bytes = req.size_bytes();
+        }
+        let (eq, backend, buf) = (&self.eq, &self.backend, &mut cache.buf);
+        let est = crate::diagnostics::condition::norm1_estimate_in(&mut cache.scratch, |mut block, _t| {
+            // (DKD)⁻¹ = D⁻¹ K⁻¹ D⁻¹, symmetric.
+            for j in 0..block.ncols() {
+                for (i, d) in eq.iter().enumerate() {
+                    block[(i, j)] /= d;
+                }
+            }
+            backend.solve_in_place(block.as_mut(), MemStack::new(buf));
+            for j in 0..block.ncols() {
+                for (i, d) in eq.iter().enumerate() {
+                    block[(i, j)] /= d;
+                }
+            }
+        });
+        let _ = self.backend.take_solve_failure();
+        let kappa = if eq.is_empty() {
+            0.0
+        } else if est.estimate.is_finite() {
+            self.norm_eq * est.estimate
+        } else {
+            f64::INFINITY
+        };
+        cache.value = Some(kappa);
+        kappa
+    }
+
+    /// Normwise backward error of `z` for `rhs` measured on the equilibrated system:
+    /// `‖D r‖∞ / (‖DKD‖∞ ‖D⁻¹z‖∞ + ‖D rhs‖∞)` with `r = rhs − Kz` given.
+    fn scaled_backward(&self, r: &[f64], z: &[f64], rhs: &[f64]) -> f64 {
+        let (mut nr, mut nz, mut nb) = (0.0f64, 0.0f64, 0.0f64);
+        for (i, d) in self.eq.iter().enumerate() {
+            nr = nr.max((r[i] * d).abs());
+            nz = nz.max((z[i] / d).abs());
+            nb = nb.max((rhs[i] * d).abs());
+        }
+        if nr.is_nan() || nz.is_nan() {
+            return f64::INFINITY;
+        }
+        if nr == 0.0 {
+            return 0.0;
+        }
+        let denom = self.norm_eq * nz + nb;
+        if denom == 0.0 || !nr.is_finite() || !denom.is_finite() {
+            f64::INFINITY
+        } else {
+            nr / denom
+        }
+    }
+
+    fn refresh_equilibration(&mut self) {
+        self.norm_eq = kkt::equilibrate::ruiz_into(&self.problem, &mut self.eq, &mut self.norm_rows);
+    }
+
     /// Factors new values of `H` and `A` with the same dimensions (and sparsity pattern)
     /// without a new analysis, reusing all storage. `c` and `b` are taken from `problem`.
     pub fn refactor(&mut self, problem: &Problem) -> Result<()> {
@@ -418,6 +565,12 @@ impl Factorization {
             self.backend = self.plan.factor_backend(&self.problem)?;
         }
         self.norm_k = kkt::norm_inf_with(&self.problem, &mut self.norm_rows);
+        self.refresh_equilibration();
+        let req = self.backend.solve_scratch(2);
+        match self.kappa.get_mut() {
+            Ok(cache) => cache.reset(req),
+            Err(poisoned) => poisoned.into_inner().reset(req),
+        }
         self.factor_s = t.elapsed().as_secs_f64();
         Ok(())
     }
@@ -556,17 +709,44 @@ impl Factorization {
         for (i, zi) in z.iter_mut().enumerate() {
             *zi = col[(i, 0)];
         }
-        let (backward_error, steps, current) = self.refine(rhs, z, r, grad, best, col, stack);
+        let (_, steps, current) = self.refine(rhs, z, r, grad, best, col, stack);
         if let Some(failure) = self.backend.take_solve_failure() {
             return Err(failure);
         }
-        if backward_error.is_nan() || backward_error > self.plan.options.accept_backward_error {
-            return Err(Error::Inaccurate {
-                backward_error,
-                steps,
-                limit: self.plan.options.accept_backward_error,
-            });
+        // Residuals of the returned point, with the caller's c and b: r = rhs − K z holds
+        // [−c − Hx − Aᵀy; b − Ax]. Refinement leaves the residual of the returned z in r
+        // unless it had to step back to an earlier iterate.
+        if !current {
+            kkt::residual_and_gradient(&self.problem, z, rhs, r, grad);
         }
+        let backward_error = normwise(r, self.norm_k, z, rhs);
+        let iterative = self.backend.method() == MethodUsed::Minres;
+        let forward_error_bound = if iterative {
+            if backward_error.is_nan() || backward_error > self.plan.options.accept_backward_error {
+                return Err(Error::Inaccurate {
+                    backward_error,
+                    steps,
+                    limit: self.plan.options.accept_backward_error,
+                });
+            }
+            None
+        } else {
+            let scaled = self.scaled_backward(r, z, rhs);
+            let kappa = self.scaled_condition();
+            let bound = crate::diagnostics::condition::forward_error_bound(kappa, scaled);
+            let limit = self.plan.options.accept_forward_error;
+            if bound.is_nan() || bound > limit || z.iter().any(|v| !v.is_finite()) {
+                let refused = self.fallback_or_refuse(c, b, out, backward_error, scaled, kappa, bound, singular);
+                // ---- issue 13: a point beyond double range is named as such.
+                if let Err(Error::Uncertified { .. }) = &refused {
+                    if let Some(k) = z.iter().position(|v| !v.is_finite()) {
+                        return Err(non_finite_solution(k, n, z[k]));
+                    }
+                }
+                return refused;
+            }
+            Some(bound)
+        };
         // ---- issue 13: a non-finite point is never returned as solved.
         if let Some(k) = z.iter().position(|v| !v.is_finite()) {
             return Err(non_finite_solution(k, n, z[k]));
@@ -576,12 +756,7 @@ impl Factorization {
         out.y.resize(m, 0.0);
         out.x.copy_from_slice(&z[..n]);
         out.y.copy_from_slice(&z[n..]);
-        // Residuals of the returned point, with the caller's c and b: r = rhs − K z holds
-        // [−c − Hx − Aᵀy; b − Ax]. Refinement leaves the residual of the returned z in r
-        // unless it had to step back to an earlier iterate.
-        if !current {
-            kkt::residual_and_gradient(&self.problem, z, rhs, r, grad);
-        }
+        out.forward_error_bound = forward_error_bound;
         out.dual_residual = inf_norm(&r[..n]);
         out.primal_residual = inf_norm(&r[n..]);
         // objective = ½xᵀHx + cᵀx = ½xᵀ(Hx + c) + ½cᵀx, with Hx + c left in grad by the
@@ -630,6 +805,61 @@ impl Factorization {
         Ok(())
     }
 
+    /// A direct solve failed the forward-error rule: repeat it with dense LBLᵀ when that can
+    /// do better (another method was used, K nonsingular, order at most
+    /// [`DENSE_FALLBACK_MAX_DIM`]), else refuse with [`Error::Uncertified`].
+    #[allow(clippy::too_many_arguments)]
+    fn fallback_or_refuse(
+        &self,
+        c: &[f64],
+        b: &[f64],
+        out: &mut Solution,
+        backward_error: f64,
+        scaled: f64,
+        kappa: f64,
+        bound: f64,
+        singular: bool,
+    ) -> Result<()> {
+        let method = self.backend.method();
+        let limit = self.plan.options.accept_forward_error;
+        let dim = self.backend.dim();
+        let bound_words = if bound.is_finite() {
+            format!("{bound:.1e}")
+        } else {
+            "missing (κω ≥ 1)".to_string()
+        };
+        // The plan decides, not the backend: a dense plan whose K was rescued by the rank
+        // analysis must not fall back to dense again.
+        if method != MethodUsed::DenseLblt
+            && self.plan.method != MethodUsed::DenseLblt
+            && !singular
+            && dim <= DENSE_FALLBACK_MAX_DIM
+        {
+            let opts = Options {
+                method: Method::Dense,
+                ..self.plan.options
+            };
+            let dense = Plan::analyze(&self.problem, &opts)?.factor(&self.problem)?;
+            let mut sol = dense.solve_with(c, b)?;
+            sol.notes.insert(
+                0,
+                format!(
+                    "{method}: forward-error bound {bound_words} above the acceptance level {limit:.0e} \
+                     (κ₁(DKD) ≈ {kappa:.1e}, scaled backward error {scaled:.1e}); solved again with dense LBLᵀ"
+                ),
+            );
+            *out = sol;
+            return Ok(());
+        }
+        Err(Error::Uncertified {
+            method: method.as_str(),
+            forward_error_bound: bound,
+            condition_estimate: kappa,
+            backward_error,
+            limit,
+        })
+    }
+
     /// Normwise backward error `‖rhs − Kz‖∞ / (‖K‖∞‖z‖∞ + ‖rhs‖∞)` on the original K.
     pub fn backward_error(&self, rhs: &[f64], z: &[f64]) -> f64 {
         let mut r = vec![0.0; rhs.len()];
@@ -656,7 +886,9 @@ impl Factorization {
         let dim = rhs.len();
         best.copy_from_slice(z);
         kkt::residual_and_gradient(&self.problem, z, rhs, r, grad);
-        let mut omega = normwise(r, self.norm_k, z, rhs);
+        // Progress is measured on the larger of the backward errors on K and on DKD.
+        let both = |r: &[f64], z: &[f64]| normwise(r, self.norm_k, z, rhs).max(self.scaled_backward(r, z, rhs));
+        let mut omega = both(r, z);
         let mut steps = 0;
         while steps < opts.max_refinement_steps && omega > opts.refinement_target && omega.is_finite() {
             for i in 0..dim {
@@ -667,7 +899,7 @@ impl Factorization {
                 z[i] += col[(i, 0)];
             }
             kkt::residual_and_gradient(&self.problem, z, rhs, r, grad);
-            let next = normwise(r, self.norm_k, z, rhs);
+            let next = both(r, z);
             steps += 1;
             if next.is_nan() || next >= omega {
                 // No progress: keep the better iterate (r and grad belong to the rejected one).

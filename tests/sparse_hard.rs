@@ -61,8 +61,10 @@ fn zero_hessian_rows_force_pivots_and_are_confirmed() {
 fn forced_pivots_without_confirmation_withhold_the_verdict() {
     let p = TiedLattice::new(4).build().unwrap();
     let mut o = sparse();
+    // Plain AMD (the paired ordering would leave no forced pivot to confirm).
     o.sparse = SparseParams {
         max_inertia_corrections: 0,
+        paired_ordering: false,
         ..Default::default()
     };
     let f = Plan::analyze(&p, &o).unwrap().factor(&p).unwrap();

@@ -9,7 +9,9 @@ pub mod dense_lblt;
 pub mod null_space;
 pub mod probe;
 pub mod schur;
+pub mod sparse_capacitance;
 pub mod sparse_ldlt;
+pub mod sparse_singular;
 
 use faer::dyn_stack::{MemStack, StackReq};
 use faer::MatMut;

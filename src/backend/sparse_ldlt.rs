@@ -60,6 +60,7 @@ use std::sync::Arc;
 
 use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
 use faer::linalg::cholesky::ldlt::factor::{LdltParams, LdltRegularization};
+use faer::prelude::ReborrowMut;
 use faer::sparse::linalg::amd;
 use faer::sparse::linalg::cholesky::{
     factorize_symbolic_cholesky, supernodal::SupernodalLdltRef, CholeskySymbolicParams, LdltRef, SymbolicCholesky,
@@ -68,7 +69,9 @@ use faer::sparse::linalg::cholesky::{
 use faer::sparse::linalg::SupernodalThreshold;
 use faer::{Conj, Mat, MatMut, Par, Side, Spec};
 
-use crate::backend::KktBackend;
+use crate::backend::sparse_capacitance::{self, Capacitance};
+use crate::backend::sparse_singular::SparseSingular;
+use crate::backend::{KktBackend, SingularFindings};
 use crate::error::{Error, Result};
 use crate::kkt::sparse::{ruiz_lower, KktPattern};
 use crate::problem::Problem;
@@ -100,8 +103,9 @@ pub struct SparseParams {
     pub static_regularization: f64,
     /// Give the pivots their expected quasidefinite signs (`+` x, `−` y). Default: true.
     pub expected_signs: bool,
-    /// Confirm the inertia through an `r×r` Schur complement when `r` pivots were forced,
-    /// up to this `r`. Default: 64.
+    /// Form the `r×r` capacitance matrix of the forced pivots (exact inertia, exact
+    /// Woodbury solves, null vectors; see [`super::sparse_capacitance`]) when `r` pivots
+    /// were forced, up to this `r`. Default: [`DEFAULT_MAX_CORRECTIONS`].
     pub max_inertia_corrections: usize,
     /// How many AMD settings to try (1 to 3, see the module docs); the cheapest predicted
     /// factorization is kept. Default: 1 (the three gave identical predicted flops on both
@@ -109,6 +113,10 @@ pub struct SparseParams {
     pub ordering_trials: usize,
     /// Simplicial or supernodal. Default: [`Supernodes::Auto`].
     pub supernodes: Supernodes,
+    /// When the AMD ordering eliminates a constraint row before every variable it couples
+    /// (a structurally zero pivot), order each constraint row right after a variable
+    /// matched to it instead (see the module docs). Default: true.
+    pub paired_ordering: bool,
     /// Parallelism of the numeric factorization. Default: all threads (faer/rayon).
     /// Solves always run sequentially.
     pub par: Par,
@@ -116,6 +124,11 @@ pub struct SparseParams {
 
 /// `√ε`, the default forced-pivot magnitude.
 pub const DEFAULT_REGULARIZATION_DELTA: f64 = 1.490_116_119_384_765_6e-8;
+
+/// Default cap on the forced pivots handled through the capacitance matrix: 2048 (its
+/// eigendecomposition, about `9r³` flops, then takes a few seconds on two cores and its
+/// two `r×r` matrices 64 MB; beyond it the inertia is reported uncertified).
+pub const DEFAULT_MAX_CORRECTIONS: usize = 2048;
 
 impl Default for SparseParams {
     fn default() -> Self {
@@ -125,9 +138,10 @@ impl Default for SparseParams {
             regularization_delta: DEFAULT_REGULARIZATION_DELTA,
             static_regularization: 0.0,
             expected_signs: true,
-            max_inertia_corrections: 64,
+            max_inertia_corrections: DEFAULT_MAX_CORRECTIONS,
             ordering_trials: 1,
             supernodes: Supernodes::Auto,
+            paired_ordering: true,
             par: Par::rayon(0),
         }
     }
@@ -151,6 +165,7 @@ pub struct SparseAnalysis {
     chosen: usize,
     factor_scratch: StackReq,
     params: SparseParams,
+    zero_pivots: (usize, usize),
 }
 
 const AMD_CANDIDATES: [(&str, f64, bool); 3] = [
@@ -194,7 +209,29 @@ impl SparseAnalysis {
                 }
             }
         }
-        let (perm, perm_inv) = best.unwrap_or_default();
+        let (mut perm, mut perm_inv) = best.unwrap_or_default();
+        // A constraint row eliminated before every variable it couples has a structurally
+        // zero pivot (no eliminated neighbour can have changed it): forced. When AMD produces
+        // any, order the (variable, constraint) pairs together instead (see `paired_order`).
+        let amd_zero_pivots = if dim > 0 {
+            structural_zero_pivots(&pattern, &perm_inv)
+        } else {
+            0
+        };
+        let mut zero_pivots = amd_zero_pivots;
+        if amd_zero_pivots > 0 && params.paired_ordering {
+            if let Some((pp, pi)) = paired_order(&pattern, problem)? {
+                zero_pivots = structural_zero_pivots(&pattern, &pi);
+                // AMD's flop prediction is for the compressed graph: not comparable, not kept.
+                orderings.push(OrderingTrial {
+                    name: "paired amd",
+                    flops: f64::NAN,
+                });
+                chosen = orderings.len() - 1;
+                perm = pp;
+                perm_inv = pi;
+            }
+        }
         let threshold = match params.supernodes {
             Supernodes::Auto => SupernodalThreshold::AUTO,
             Supernodes::Never => SupernodalThreshold::FORCE_SIMPLICIAL,
@@ -224,6 +261,7 @@ impl SparseAnalysis {
             chosen,
             factor_scratch,
             params: *params,
+            zero_pivots: (amd_zero_pivots, zero_pivots),
         })
     }
 
@@ -258,10 +296,161 @@ impl SparseAnalysis {
         8 * (self.factor_entries() + self.pattern.nnz() + 3 * self.pattern.dim()) + self.factor_scratch.size_bytes()
     }
 
+    /// Structurally zero pivots (constraint rows eliminated before every variable they
+    /// couple, so forced) of the plain AMD ordering and of the ordering kept.
+    pub fn structural_zero_pivots(&self) -> (usize, usize) {
+        self.zero_pivots
+    }
+
     /// The settings the analysis was made with.
     pub fn params(&self) -> &SparseParams {
         &self.params
     }
+}
+
+/// Constraint rows (index ≥ n) that `perm_inv` eliminates before all of their neighbours:
+/// their pivot is exactly the zero diagonal of K, so it is forced.
+fn structural_zero_pivots(pattern: &KktPattern, perm_inv: &[usize]) -> usize {
+    let (n, dim) = (pattern.n(), pattern.dim());
+    let sym = pattern.symbolic();
+    let (cp, ri) = (sym.col_ptr(), sym.row_idx());
+    // first[y] = earliest elimination position among y's neighbours.
+    let mut first = vec![usize::MAX; dim - n];
+    for j in 0..n {
+        for &i in &ri[cp[j]..cp[j + 1]] {
+            if i >= n {
+                first[i - n] = first[i - n].min(perm_inv[j]);
+            }
+        }
+    }
+    // Constraint–constraint entries do not exist in K (zero (2,2) block).
+    (0..dim - n).filter(|&r| perm_inv[n + r] < first[r]).count()
+}
+
+/// Matches each constraint row with a variable it couples (greedy, largest |a_ij| among the
+/// unmatched ones, rows in order), orders the graph in which each pair is one node with
+/// faer's AMD, and expands each pair as (variable, constraint): every matched constraint is
+/// eliminated right after a variable it couples, so with `H ≻ 0` no pivot is zero (Bridson
+/// 2007, "An ordering method for the direct solution of saddle-point matrices", uses the same
+/// idea). Written by hand: faer orders graphs, not constrained pairs. Returns
+/// `(perm, perm_inv)`.
+fn paired_order(pattern: &KktPattern, problem: &Problem) -> Result<Option<(Vec<usize>, Vec<usize>)>> {
+    let (n, dim) = (pattern.n(), pattern.dim());
+    let m = dim - n;
+    if m == 0 {
+        return Ok(None);
+    }
+    let mut values = vec![0.0; pattern.nnz()];
+    pattern.scatter(problem, &mut values);
+    let sym = pattern.symbolic();
+    let (cp, ri) = (sym.col_ptr(), sym.row_idx());
+    // Rows of A as lists of (column, |value|).
+    let mut row_ptr = vec![0usize; m + 1];
+    for j in 0..n {
+        for &i in &ri[cp[j]..cp[j + 1]] {
+            if i >= n {
+                row_ptr[i - n + 1] += 1;
+            }
+        }
+    }
+    for r in 0..m {
+        row_ptr[r + 1] += row_ptr[r];
+    }
+    let mut fill = row_ptr.clone();
+    let mut cols = vec![(0usize, 0.0f64); row_ptr[m]];
+    for j in 0..n {
+        for p in cp[j]..cp[j + 1] {
+            let i = ri[p];
+            if i >= n {
+                cols[fill[i - n]] = (j, values[p].abs());
+                fill[i - n] += 1;
+            }
+        }
+    }
+    let mut mate_of_var = vec![usize::MAX; n];
+    let mut group = vec![usize::MAX; dim];
+    let mut groups = 0usize;
+    for r in 0..m {
+        let best = cols[row_ptr[r]..row_ptr[r + 1]]
+            .iter()
+            .filter(|(j, v)| mate_of_var[*j] == usize::MAX && *v > 0.0)
+            .fold(None::<(usize, f64)>, |b, &(j, v)| match b {
+                Some((_, bv)) if bv >= v => b,
+                _ => Some((j, v)),
+            });
+        if let Some((j, _)) = best {
+            mate_of_var[j] = r;
+            group[j] = groups;
+            group[n + r] = groups;
+            groups += 1;
+        }
+    }
+    for g in group.iter_mut() {
+        if *g == usize::MAX {
+            *g = groups;
+            groups += 1;
+        }
+    }
+    // Lower-triangle pattern of the compressed graph.
+    let mut edges: Vec<(usize, usize)> = Vec::with_capacity(pattern.nnz());
+    for j in 0..dim {
+        edges.push((group[j], group[j]));
+        for &i in &ri[cp[j]..cp[j + 1]] {
+            let (a, b) = (group[i], group[j]);
+            if a != b {
+                edges.push((a.min(b), a.max(b)));
+            }
+        }
+    }
+    edges.sort_unstable();
+    edges.dedup();
+    let mut gcp = vec![0usize; groups + 1];
+    let mut gri = Vec::with_capacity(edges.len());
+    for &(c, r) in &edges {
+        gcp[c + 1] += 1;
+        gri.push(r);
+    }
+    for c in 0..groups {
+        gcp[c + 1] += gcp[c];
+    }
+    let gsym = faer::sparse::SymbolicSparseColMat::new_checked(groups, groups, gcp, None, gri);
+    let resources = |e: faer::sparse::FaerError| Error::Resources {
+        detail: format!("paired AMD ordering of a graph with {groups} nodes: {e:?}"),
+    };
+    let mut buf = MemBuffer::try_new(amd::order_scratch::<usize>(groups, edges.len()))
+        .map_err(|_| resources(faer::sparse::FaerError::OutOfMemory))?;
+    let (mut gp, mut gpi) = (vec![0usize; groups], vec![0usize; groups]);
+    amd::order(
+        &mut gp,
+        &mut gpi,
+        gsym.as_ref(),
+        amd::Control::default(),
+        MemStack::new(&mut buf),
+    )
+    .map_err(resources)?;
+    // Expand: members of each group, the variable before the constraint.
+    let mut members_ptr = vec![0usize; groups + 1];
+    for &g in &group {
+        members_ptr[g + 1] += 1;
+    }
+    for g in 0..groups {
+        members_ptr[g + 1] += members_ptr[g];
+    }
+    let mut members = vec![0usize; dim];
+    let mut at = members_ptr.clone();
+    for (node, &g) in group.iter().enumerate() {
+        members[at[g]] = node; // nodes visited in increasing order: variable (< n) first
+        at[g] += 1;
+    }
+    let mut perm = Vec::with_capacity(dim);
+    for &g in &gp {
+        perm.extend_from_slice(&members[members_ptr[g]..members_ptr[g + 1]]);
+    }
+    let mut perm_inv = vec![0usize; dim];
+    for (pos, &node) in perm.iter().enumerate() {
+        perm_inv[node] = pos;
+    }
+    Ok(Some((perm, perm_inv)))
 }
 
 /// Which sign rule produced the current factorization.
@@ -291,6 +480,8 @@ pub struct SparseLdlt {
     forced_idx: Vec<usize>,
     forced_positive: Vec<bool>,
     forced_sum: Vec<f64>,
+    cap: Option<Capacitance>,
+    singular: Option<SparseSingular>,
 }
 
 impl std::fmt::Debug for SparseLdlt {
@@ -339,6 +530,8 @@ impl SparseLdlt {
             forced_idx: Vec::new(),
             forced_positive: Vec::new(),
             forced_sum: Vec::new(),
+            cap: None,
+            singular: None,
             analysis,
         })
     }
@@ -491,65 +684,67 @@ impl SparseLdlt {
         self.forced_sum = sums;
     }
 
-    /// Exact inertia of K̃ from the forced perturbation (Haynsworth inertia additivity).
-    fn confirm_inertia(&mut self, m_inertia: Inertia) -> Option<Inertia> {
-        let r = self.forced_idx.len();
+    /// Forms and factors the capacitance matrix of the forced pivots (see
+    /// [`super::sparse_capacitance`]) and returns the exact inertia of K̃, or `None` when it
+    /// could not be formed (memory, non-finite values).
+    fn build_capacitance(&mut self, m_inertia: Inertia) -> Option<Inertia> {
+        self.cap = None;
         let dim = self.analysis.pattern.dim();
-        let fwd: Vec<usize> = match self.analysis.symbolic.perm() {
+        let idx: Vec<usize> = match self.analysis.symbolic.perm() {
             Some(p) => self.forced_idx.iter().map(|&i| p.arrays().0[i]).collect(),
             None => self.forced_idx.clone(),
         };
-        // S = C⁻¹ − Uᵀ M⁻¹ U, in the equilibrated, original (unpermuted) indexing:
-        // M⁻¹ e_o for o = fwd[i] is the solve with the factors.
-        let mut cols = Mat::<f64>::zeros(dim, r);
-        for (q, &o) in fwd.iter().enumerate() {
-            cols[(o, q)] = 1.0;
-        }
-        let ldlt = LdltRef::new(&self.analysis.symbolic, &self.l_values);
-        let mut buf = MemBuffer::new(self.analysis.symbolic.solve_in_place_scratch::<f64>(r, Par::Seq));
-        ldlt.solve_in_place_with_conj(Conj::No, cols.as_mut(), Par::Seq, MemStack::new(&mut buf));
-        let mut s = Mat::<f64>::zeros(r, r);
-        let mut c_inertia = Inertia::default();
-        for q in 0..r {
-            let e = self.forced_sum[q];
-            if e > 0.0 {
-                c_inertia.positive += 1;
-            } else {
-                c_inertia.negative += 1;
-            }
-            for p in 0..r {
-                s[(p, q)] = -cols[(fwd[p], q)];
-            }
-            s[(q, q)] += 1.0 / e;
-        }
-        // Symmetrize the computed S (the solves are not exactly symmetric in floating point).
-        for q in 0..r {
-            for p in 0..q {
-                let v = 0.5 * (s[(p, q)] + s[(q, p)]);
-                s[(p, q)] = v;
-                s[(q, p)] = v;
-            }
-        }
-        let eig = s.self_adjoint_eigenvalues(Side::Lower).ok()?;
+        let r = idx.len();
         let delta = self.delta();
         let tol = self.tau() / (delta * delta);
-        let mut s_inertia = Inertia::default();
-        for lambda in eig {
-            if !lambda.is_finite() {
-                return None;
+        let ldlt = LdltRef::new(&self.analysis.symbolic, &self.l_values);
+        let width = sparse_capacitance::CHUNK.min(r.max(1));
+        let mut buf =
+            sparse_capacitance::try_buffer(self.analysis.symbolic.solve_in_place_scratch::<f64>(width, Par::Seq))?;
+        let cap = Capacitance::new(dim, idx, self.forced_sum.clone(), tol, |block| {
+            ldlt.solve_in_place_with_conj(Conj::No, block, Par::Seq, MemStack::new(&mut buf));
+        })?;
+        let inertia = cap.inertia_of_k(m_inertia, dim)?;
+        self.cap = Some(cap);
+        Some(inertia)
+    }
+
+    /// The capacitance matrix of the forced pivots, when the last factorization had any and
+    /// it could be formed.
+    pub fn capacitance(&self) -> Option<&Capacitance> {
+        self.cap.as_ref()
+    }
+
+    fn null_vectors_equilibrated(&self) -> Mat<f64> {
+        let dim = self.dim();
+        let Some(cap) = &self.cap else {
+            return Mat::zeros(dim, 0);
+        };
+        let ldlt = LdltRef::new(&self.analysis.symbolic, &self.l_values);
+        cap.null_vectors(dim, |block| {
+            let k = block.ncols();
+            let mut buf = MemBuffer::new(self.analysis.symbolic.solve_in_place_scratch::<f64>(k, Par::Seq));
+            ldlt.solve_in_place_with_conj(Conj::No, block, Par::Seq, MemStack::new(&mut buf));
+        })
+    }
+
+    /// Null vectors of the original K (columns, unit max-norm each), from the capacitance
+    /// matrix: empty when K was found nonsingular or no capacitance matrix exists.
+    pub fn null_vectors(&self) -> Mat<f64> {
+        let dim = self.dim();
+        let mut w = self.null_vectors_equilibrated();
+        // K̃ = S K S, so K̃w̃ = 0 gives K (S w̃) = S⁻¹ K̃ w̃ = 0: unscale by S.
+        for c in 0..w.ncols() {
+            let mut mx = 0.0f64;
+            for i in 0..dim {
+                w[(i, c)] *= self.scale[i];
+                mx = mx.max(w[(i, c)].abs());
             }
-            if lambda.abs() <= tol {
-                s_inertia.zero += 1;
-            } else if lambda > 0.0 {
-                s_inertia.positive += 1;
-            } else {
-                s_inertia.negative += 1;
+            if mx > 0.0 {
+                w.col_mut(c).iter_mut().for_each(|v| *v /= mx);
             }
         }
-        let positive = (m_inertia.positive + s_inertia.positive).checked_sub(c_inertia.positive)?;
-        let negative = (m_inertia.negative + s_inertia.negative).checked_sub(c_inertia.negative)?;
-        let inertia = Inertia::new(positive, negative, s_inertia.zero);
-        (positive + negative + s_inertia.zero == dim).then_some(inertia)
+        w
     }
 }
 
@@ -564,11 +759,7 @@ impl KktBackend for SparseLdlt {
 
     fn factor(&mut self, problem: &Problem) -> Result<()> {
         let a = Arc::clone(&self.analysis);
-        if !a.pattern.fits(problem) {
-            return Err(Error::StructureChanged {
-                detail: "the problem does not have the sparsity pattern this analysis was made for".into(),
-            });
-        }
+        a.pattern.verify(problem)?;
         let dim = a.pattern.dim();
         if dim == 0 {
             self.inertia = Inertia::default();
@@ -629,9 +820,10 @@ impl KktBackend for SparseLdlt {
         }
         self.certified = gamma == 0.0;
         self.inertia = m_inertia;
+        self.cap = None;
         if self.forced > 0 {
             let confirmed = if self.forced <= a.params.max_inertia_corrections {
-                self.confirm_inertia(m_inertia)
+                self.build_capacitance(m_inertia)
             } else {
                 None
             };
@@ -639,6 +831,17 @@ impl KktBackend for SparseLdlt {
                 Some(i) => self.inertia = i,
                 None => self.certified = false,
             }
+        }
+        self.singular = None;
+        if self.inertia.zero > 0 && self.certified {
+            let w = self.null_vectors_equilibrated();
+            self.singular = Some(SparseSingular::new(
+                w.as_ref(),
+                &self.scale,
+                a.pattern.n(),
+                a.pattern.m(),
+                self.inertia,
+            ));
         }
         Ok(())
     }
@@ -656,7 +859,11 @@ impl KktBackend for SparseLdlt {
     }
 
     fn solve_scratch(&self, nrhs: usize) -> StackReq {
-        self.analysis.symbolic.solve_in_place_scratch::<f64>(nrhs, Par::Seq)
+        let plain = self.analysis.symbolic.solve_in_place_scratch::<f64>(nrhs, Par::Seq);
+        match &self.cap {
+            Some(cap) => plain.and(cap.scratch(self.dim(), nrhs)),
+            None => plain,
+        }
     }
 
     fn solve_in_place(&self, mut rhs: MatMut<'_, f64>, stack: &mut MemStack) {
@@ -670,12 +877,25 @@ impl KktBackend for SparseLdlt {
             }
         }
         let ldlt = LdltRef::new(&self.analysis.symbolic, &self.l_values);
-        ldlt.solve_in_place_with_conj(Conj::No, faer::prelude::ReborrowMut::rb_mut(&mut rhs), Par::Seq, stack);
+        ldlt.solve_in_place_with_conj(Conj::No, rhs.rb_mut(), Par::Seq, stack);
+        if let Some(cap) = &self.cap {
+            // Exact K̃⁻¹ (or K̃⁺ on a consistent singular system) by Woodbury.
+            cap.correct(rhs.rb_mut(), stack, |block, stack| {
+                ldlt.solve_in_place_with_conj(Conj::No, block, Par::Seq, stack);
+            });
+        }
         for j in 0..rhs.ncols() {
             for i in 0..dim {
                 rhs[(i, j)] *= self.scale[i];
             }
         }
+        if let Some(sing) = &self.singular {
+            sing.project(rhs);
+        }
+    }
+
+    fn singular_findings(&self, problem: &Problem, c: &[f64], b: &[f64]) -> Option<Result<SingularFindings>> {
+        self.singular.as_ref().map(|s| s.findings(problem, c, b))
     }
 }
 

@@ -567,17 +567,21 @@ fn solve(
     };
     // The backend that holds the factors (after any fallback or rank analysis).
     let used = factorization.backend().method().as_str();
-    // A few solves with the factors (at most diagnostics::condition::MAX_SOLVE_CALLS).
+    // κ₁ of the equilibrated K behind the forward-error bound: estimated once per
+    // factorization by the solve (at most diagnostics::condition::MAX_SOLVE_CALLS solves).
+    // `condition_estimate` stays κ₁(K) of the original K (the JSON contract).
     let condition = diagnostics::condition::estimate(&factorization);
     let kappa = Some(condition.kappa);
     let solution = match factorization.solve() {
         Ok(s) => s,
         Err(e) => return fail(e, sizes, Some(used), factorization.inertia(), kappa),
     };
+    let scaled_kappa = factorization.scaled_condition();
     if let Err(e) = write_solution(shown, &solution) {
         return fail(e, sizes, Some(used), solution.inertia, kappa);
     }
-    let bound = condition.forward_error_bound(solution.backward_error);
+    // The bound the solve was accepted by (equilibrated K).
+    let bound = solution.forward_error_bound.unwrap_or(f64::INFINITY);
     let finite = |v: f64| v.is_finite().then_some(v);
     if json {
         let mut o = solution_json(&problem, &solution);
@@ -596,7 +600,7 @@ fn solve(
         print!("{}", human(&problem, &solution));
         println!(
             "  condition   {}",
-            condition_line(condition.kappa, condition.solves, bound)
+            condition_line(condition.kappa, condition.solves, scaled_kappa, bound)
         );
         if sensitivity {
             println!("  sensitivity of the optimal objective (first order):");
@@ -637,7 +641,7 @@ fn solve_distributed(dir: &std::path::Path, out: Option<&std::path::Path>, json:
 /// The condition line of the readable report: κ estimate and the forward-error bound it
 /// implies, in words when the bound says nothing (K singular to working precision, or a
 /// bound of 1 or more).
-fn condition_line(kappa: f64, solves: usize, bound: f64) -> String {
+fn condition_line(kappa: f64, solves: usize, scaled_kappa: f64, bound: f64) -> String {
     use tangency::report::num;
     if !kappa.is_finite() {
         return "κ₁(K) = ∞ (K is singular to working precision): no forward-error bound; the residuals \
@@ -649,7 +653,12 @@ fn condition_line(kappa: f64, solves: usize, bound: f64) -> String {
     } else {
         "the estimate bounds no digit of x (the residuals and backward error still hold)".to_string()
     };
-    format!("κ₁(K) ≈ {} ({solves} solve(s)); {bound_words}", num(kappa, 3))
+    let scaled = if scaled_kappa.is_finite() {
+        format!(", κ₁(DKD) ≈ {} (D: equilibration)", num(scaled_kappa, 3))
+    } else {
+        String::new()
+    };
+    format!("κ₁(K) ≈ {} ({solves} solve(s)){scaled}; {bound_words}", num(kappa, 3))
 }
 
 /// Reports a failed iterative solve (error JSON with the iterations and residual tail of a

@@ -54,7 +54,39 @@ pub struct Norm1Estimate {
 /// });
 /// assert_eq!(est.estimate, 5.0);
 /// ```
-pub fn norm1_estimate(dim: usize, mut apply: impl FnMut(MatMut<'_, f64>, bool)) -> Norm1Estimate {
+pub fn norm1_estimate(dim: usize, apply: impl FnMut(MatMut<'_, f64>, bool)) -> Norm1Estimate {
+    norm1_estimate_in(&mut Norm1Scratch::new(dim), apply)
+}
+
+/// Work vectors of [`norm1_estimate_in`] for operators of one order (allocated once, so that
+/// repeated estimates do not allocate).
+#[derive(Clone, Debug)]
+pub struct Norm1Scratch {
+    first: Mat<f64>,
+    v: Mat<f64>,
+    xi: Vec<f64>,
+}
+
+impl Norm1Scratch {
+    /// Work vectors for operators of order `dim`.
+    pub fn new(dim: usize) -> Self {
+        Norm1Scratch {
+            first: Mat::zeros(dim, 2),
+            v: Mat::zeros(dim, 1),
+            xi: vec![0.0; dim],
+        }
+    }
+
+    /// The operator order these vectors are for.
+    pub fn dim(&self) -> usize {
+        self.xi.len()
+    }
+}
+
+/// [`norm1_estimate`] with caller-provided work vectors (no allocation); the order is
+/// `scratch.dim()`.
+pub fn norm1_estimate_in(scratch: &mut Norm1Scratch, mut apply: impl FnMut(MatMut<'_, f64>, bool)) -> Norm1Estimate {
+    let dim = scratch.dim();
     if dim == 0 {
         return Norm1Estimate {
             estimate: 0.0,
@@ -62,8 +94,8 @@ pub fn norm1_estimate(dim: usize, mut apply: impl FnMut(MatMut<'_, f64>, bool)) 
         };
     }
     let mut calls = 0;
+    let Norm1Scratch { first, v, xi } = scratch;
     // Column 0: the starting vector e/N; column 1: the alternating test vector.
-    let mut first = Mat::<f64>::zeros(dim, 2);
     for i in 0..dim {
         first[(i, 0)] = 1.0 / dim as f64;
         let mag = if dim > 1 {
@@ -75,7 +107,7 @@ pub fn norm1_estimate(dim: usize, mut apply: impl FnMut(MatMut<'_, f64>, bool)) 
     }
     apply(first.as_mut(), false);
     calls += 1;
-    let alt_est = 2.0 * norm1_col(&first, 1) / (3.0 * dim as f64);
+    let alt_est = 2.0 * norm1_col(first, 1) / (3.0 * dim as f64);
     let finish = |est: f64, calls: usize| Norm1Estimate {
         estimate: if est.is_nan() { f64::INFINITY } else { est.max(alt_est) },
         calls,
@@ -83,19 +115,17 @@ pub fn norm1_estimate(dim: usize, mut apply: impl FnMut(MatMut<'_, f64>, bool)) 
     if !alt_est.is_finite() {
         return finish(f64::INFINITY, calls);
     }
-    let mut est = norm1_col(&first, 0);
+    let mut est = norm1_col(first, 0);
     if dim == 1 || !est.is_finite() {
         return finish(if est.is_finite() { est } else { f64::INFINITY }, calls);
     }
-    let mut v = Mat::<f64>::zeros(dim, 1);
-    let mut xi = vec![0.0; dim];
     for i in 0..dim {
         xi[i] = sign(first[(i, 0)]);
         v[(i, 0)] = xi[i];
     }
     apply(v.as_mut(), true);
     calls += 1;
-    let mut j = argmax_abs(&v);
+    let mut j = argmax_abs(v);
     let mut iter = 2;
     loop {
         v.fill(0.0);
@@ -103,7 +133,7 @@ pub fn norm1_estimate(dim: usize, mut apply: impl FnMut(MatMut<'_, f64>, bool)) 
         apply(v.as_mut(), false);
         calls += 1;
         let old = est;
-        est = norm1_col(&v, 0);
+        est = norm1_col(v, 0);
         if !est.is_finite() {
             return finish(f64::INFINITY, calls);
         }
@@ -119,7 +149,7 @@ pub fn norm1_estimate(dim: usize, mut apply: impl FnMut(MatMut<'_, f64>, bool)) 
         apply(v.as_mut(), true);
         calls += 1;
         let last = j;
-        j = argmax_abs(&v);
+        j = argmax_abs(v);
         if v[(last, 0)].abs() == v[(j, 0)].abs() || iter >= MAX_ITERATIONS {
             break;
         }

@@ -549,6 +549,8 @@ impl DistributedKkt {
             primal_residual: inf_norm(&r[n..]),
             dual_residual: inf_norm(&r[..n]),
             backward_error,
+            // Accepted by the backward error above; κ is not estimated on this path yet.
+            forward_error_bound: None,
             refinement_steps: steps,
             inertia: Some(self.inertia),
             verdict: Some(verdict),

@@ -5,6 +5,7 @@
 //! |---|---|---|---|
 //! | `poisson-control` | [`Family::PoissonControl`] | n = 2k², m = k² (N = 3k²) | PDE constraints, badly scaled blocks, large fill |
 //! | `tied-lattice` | [`Family::TiedLattice`] | n = 2(k+1)(k+2), m = 5k + 3 | singular H (floating parts), many tie and multipoint constraints, supports |
+//! | `stokes-mac` | [`Family::StokesMac`] | n = 2k(k−1), m = k² − 1 | saddle-point flow constraints (divergence), zero (2,2) block, many delayed pivots |
 //!
 //! Both are invented scenarios for testing linear algebra. They are **not** design or
 //! analysis tools for real plates, structures or heating systems; defer to local codes
@@ -12,6 +13,7 @@
 
 pub mod lattice;
 pub mod poisson;
+pub mod stokes;
 
 use std::path::Path;
 use std::str::FromStr;
@@ -21,6 +23,7 @@ use crate::problem::Problem;
 
 pub use lattice::TiedLattice;
 pub use poisson::PoissonControl;
+pub use stokes::StokesMac;
 
 /// A generated problem family.
 #[derive(Copy, Clone, Debug, PartialEq, Eq)]
@@ -31,11 +34,13 @@ pub enum Family {
     /// A cross-braced spring lattice in two tied halves with supports and a rigid edge
     /// ([`TiedLattice`]).
     TiedLattice,
+    /// Slow flow in a closed box on a staggered grid ([`StokesMac`]).
+    StokesMac,
 }
 
 impl Family {
     /// Every family name the command line accepts.
-    pub const NAMES: &'static [&'static str] = &["poisson-control", "tied-lattice"];
+    pub const NAMES: &'static [&'static str] = &["poisson-control", "tied-lattice", "stokes-mac"];
 
     /// The problem of size parameter `k` with default settings.
     ///
@@ -49,6 +54,7 @@ impl Family {
         match self {
             Family::PoissonControl => PoissonControl::new(k).build(),
             Family::TiedLattice => TiedLattice::new(k).build(),
+            Family::StokesMac => StokesMac::new(k).build(),
         }
     }
 }
@@ -59,6 +65,7 @@ impl FromStr for Family {
         match s {
             "poisson-control" => Ok(Family::PoissonControl),
             "tied-lattice" => Ok(Family::TiedLattice),
+            "stokes-mac" => Ok(Family::StokesMac),
             other => Err(Error::InvalidOption(format!(
                 "unknown problem family '{other}'; known families: {}",
                 Family::NAMES.join(", ")

@@ -8,6 +8,7 @@ use faer::{Mat, MatMut};
 
 use crate::problem::Problem;
 
+pub mod equilibrate;
 pub mod sparse;
 
 /// Order of the KKT matrix, `n + m`.

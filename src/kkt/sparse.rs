@@ -9,6 +9,7 @@
 
 use faer::sparse::{SparseColMatRef, SymbolicSparseColMat, SymbolicSparseColMatRef};
 
+use crate::error::{Block, Error, Result};
 use crate::problem::{Matrix, Problem};
 
 /// Marker for a value of `H` that lies in the strict upper triangle (not stored in K).
@@ -152,6 +153,65 @@ impl KktPattern {
             && problem.m() == self.m
             && problem.hessian().nnz() == self.h_map.len()
             && problem.constraints().nnz() == self.a_map.len()
+    }
+
+    /// Checks that `problem` has exactly the pattern this map was built for: the same
+    /// sizes, and every stored value of `H` and `A` (in [`Matrix::for_each`] order) lands on
+    /// the position of K with its own row and column (index arrays compared, not counts).
+    /// `O(nnz)`, no allocation.
+    ///
+    /// # Errors
+    /// [`Error::StructureChanged`] naming the block and the first entry that differs
+    /// (0-based).
+    pub fn verify(&self, problem: &Problem) -> Result<()> {
+        let changed = |detail: String| Err(Error::StructureChanged { detail });
+        if !self.fits(problem) {
+            return changed(format!(
+                "the analysis is for n = {}, m = {} with {} stored values in H and {} in A; the problem has \
+                 n = {}, m = {} with {} and {}",
+                self.n,
+                self.m,
+                self.h_map.len(),
+                self.a_map.len(),
+                problem.n(),
+                problem.m(),
+                problem.hessian().nnz(),
+                problem.constraints().nnz()
+            ));
+        }
+        let cp = self.symbolic.col_ptr();
+        let ri = self.symbolic.row_idx();
+        let at = |pos: usize, row: usize, col: usize| {
+            pos != NOT_STORED && (cp[col]..cp[col + 1]).contains(&pos) && ri[pos] == row
+        };
+        let mut bad: Option<(Block, usize, usize)> = None;
+        let mut k = 0;
+        problem.hessian().for_each(|i, j, _| {
+            let ok = if i >= j {
+                at(self.h_map[k], i, j)
+            } else {
+                self.h_map[k] == NOT_STORED
+            };
+            if !ok && bad.is_none() {
+                bad = Some((Block::H, i, j));
+            }
+            k += 1;
+        });
+        let n = self.n;
+        let mut k = 0;
+        problem.constraints().for_each(|r, j, _| {
+            if !at(self.a_map[k], n + r, j) && bad.is_none() {
+                bad = Some((Block::A, r, j));
+            }
+            k += 1;
+        });
+        match bad {
+            None => Ok(()),
+            Some((block, row, col)) => changed(format!(
+                "block {block} has a stored entry at row {row}, column {col} (0-based) that the analyzed pattern \
+                 does not have there (same counts, another pattern): analyze the new pattern with Plan::analyze"
+            )),
+        }
     }
 
     /// Writes the values of K (lower triangle) for `problem` into `values`: a scatter
