@@ -702,7 +702,7 @@ fn run_case(bin: &str, rng: &mut Rng, stats: &mut [usize; 5]) -> Result<(), Stri
     let expected: &[&str] = match code {
         0 => &["solved"],
         2 => &["invalid_input"],
-        3 => &["singular", "infeasible", "unbounded", "overflow"],
+        3 => &["singular", "infeasible", "unbounded", "overflow", "inaccurate"],
         _ => &["not_converged"],
     };
     if !expected.contains(&status_word) {
