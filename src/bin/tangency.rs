@@ -101,8 +101,9 @@ enum Command {
     /// of F and name the coefficients) or the Matrix Market files F.mtx, g.mtx and optionally
     /// C.mtx, d.mtx, w.mtx (coefficients named b0, b1, …). Restrictions may also be written
     /// as equations against the names, in restrictions.txt (one per line) or with --restrict:
-    /// a term is NUMBER, NAME, NUMBER*NAME or NUMBER NAME, joined by + or -, one '=' per
-    /// equation; '#' starts a comment ("x1 + x2 = 1", "2*x3 - x4 = 0").
+    /// a term is NUMBER, NAME, NUMBER*NAME or NUMBER NAME, joined by + or -, one '=', '<='
+    /// or '>=' per restriction; '#' starts a comment ("x1 + x2 = 1", "2*x3 - x4 = 0",
+    /// "x5 >= 0": inequality restrictions are fitted exactly and their active set reported).
     /// Reports β with standard errors, t statistics, two-sided p-values, confidence
     /// intervals, HC0–HC3 robust standard errors, the multipliers y (d(½·RSS)/dd = −y) and
     /// the F, Wald, likelihood-ratio and score tests of the restrictions.

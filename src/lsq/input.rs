@@ -296,7 +296,7 @@ impl LsqProblem {
                 detail: "the problem already has restrictions C (C.mtx): give them either as C or as equations".into(),
             });
         }
-        let parsed = super::restrict::parse(text, &self.names)?;
+        let (parsed, inequalities) = super::restrict::split(super::restrict::parse(text, &self.names)?);
         let n = self.n();
         let mut c = Mat::<f64>::zeros(parsed.len(), n);
         for (i, r) in parsed.iter().enumerate() {
@@ -307,6 +307,7 @@ impl LsqProblem {
         Ok(LsqProblem {
             c: crate::problem::Matrix::Dense(c),
             d: parsed.iter().map(|r| r.rhs).collect(),
+            inequalities,
             ..self.clone()
         })
     }

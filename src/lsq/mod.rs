@@ -66,6 +66,7 @@
 //! covariance is not of that form).
 
 mod augmented;
+pub mod bounded;
 mod dense;
 pub mod inference;
 pub mod input;
@@ -248,6 +249,7 @@ pub struct LsqBuilder {
     ridge: f64,
     names: Option<Vec<String>>,
     equations: Option<String>,
+    inequalities: Vec<restrict::Restriction>,
 }
 
 impl LsqBuilder {
@@ -405,7 +407,8 @@ impl LsqBuilder {
                         "restriction equations carry their own right-hand sides: do not give d as well",
                     ));
                 }
-                let parsed = restrict::parse(&text, &names)?;
+                let (parsed, inequalities) = restrict::split(restrict::parse(&text, &names)?);
+                self.inequalities = inequalities;
                 let q = parsed.len();
                 let mut entries = Vec::new();
                 let mut d = Vec::with_capacity(q);
@@ -470,6 +473,7 @@ impl LsqBuilder {
             w: self.w,
             ridge: self.ridge,
             names,
+            inequalities: self.inequalities,
         })
     }
 }
@@ -535,6 +539,8 @@ pub struct LsqProblem {
     pub(crate) w: Option<Vec<f64>>,
     pub(crate) ridge: f64,
     pub(crate) names: Vec<String>,
+    /// Inequality restrictions (`≤` or `≥`), from restriction equations; see [`bounded`].
+    pub(crate) inequalities: Vec<restrict::Restriction>,
 }
 
 impl LsqProblem {
@@ -578,6 +584,10 @@ impl LsqProblem {
     pub fn names(&self) -> &[String] {
         &self.names
     }
+    /// The inequality restrictions (`≤`, `≥`) given as equations, in the order written.
+    pub fn inequality_restrictions(&self) -> &[restrict::Restriction] {
+        &self.inequalities
+    }
     /// The same problem with another ridge parameter `λ ≥ 0`.
     pub fn with_ridge(&self, lambda: f64) -> Result<LsqProblem> {
         if !(lambda.is_finite() && lambda >= 0.0) {
@@ -594,8 +604,16 @@ impl LsqProblem {
         })
     }
 
-    /// Fits with the given options.
+    /// Fits with the given options (with inequality restrictions through [`bounded`]).
     pub fn fit(&self, options: &FitOptions) -> Result<Fit> {
+        if !self.inequalities.is_empty() {
+            return bounded::fit(self, options);
+        }
+        self.fit_equalities(options)
+    }
+
+    /// The fit under the equality restrictions only (inequality restrictions ignored).
+    pub(crate) fn fit_equalities(&self, options: &FitOptions) -> Result<Fit> {
         let method = match options.method {
             FitMethod::Auto => {
                 let dense_entries = self.p().saturating_mul(self.n());
@@ -726,6 +744,9 @@ pub struct Fit {
     pub method: FitMethod,
     /// Remarks worth reading (dependent restrictions, skipped statistics, …).
     pub notes: Vec<String>,
+    /// The inequality restrictions at the fit, in the order written (empty without any; see
+    /// [`bounded`]). With one of them active the inferential statistics are not reported.
+    pub inequality_restrictions: Vec<bounded::InequalityOutcome>,
 }
 
 impl Fit {
@@ -765,6 +786,7 @@ impl Fit {
             refinement_history: log.history,
             method,
             notes,
+            inequality_restrictions: Vec::new(),
         }
     }
 

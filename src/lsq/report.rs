@@ -38,7 +38,10 @@ pub fn fit_json(problem: &LsqProblem, fit: &Fit) -> Json {
 /// `restriction_test {statistic, df1, df2, p_value, wald, likelihood_ratio, score}` (the
 /// last three `{statistic, p_value}`, χ²(df1)), `refinement {steps, corrections}`, `notes`.
 /// Statistics that are not defined (ridge, zero dof, a coefficient fixed by the
-/// restrictions) are `null`.
+/// restrictions, an active inequality restriction) are `null`. With inequality restrictions
+/// (only then) two more keys: `inequality_restrictions`, one object per restriction in the
+/// order written, `{line, relation ("<=" or ">="), value, rhs, multiplier, active}`, and
+/// `active_inequalities`, the 0-based positions of the active ones in that list.
 pub fn fit_json_at(problem: &LsqProblem, fit: &Fit, level: f64) -> Json {
     let mut o = Json::object();
     o.set("status", "solved");
@@ -114,6 +117,34 @@ pub fn fit_json_at(problem: &LsqProblem, fit: &Fit, level: f64) -> Json {
         None => Json::Null,
     };
     o.set("restriction_test", test);
+    if !fit.inequality_restrictions.is_empty() {
+        let list = fit
+            .inequality_restrictions
+            .iter()
+            .map(|r| {
+                let mut j = Json::object();
+                j.set("line", r.line)
+                    .set("relation", relation_word(r.relation))
+                    .set("value", r.value)
+                    .set("rhs", r.rhs)
+                    .set("multiplier", r.multiplier)
+                    .set("active", r.active);
+                j
+            })
+            .collect();
+        o.set("inequality_restrictions", Json::Arr(list));
+        o.set(
+            "active_inequalities",
+            Json::Arr(
+                fit.inequality_restrictions
+                    .iter()
+                    .enumerate()
+                    .filter(|(_, r)| r.active)
+                    .map(|(k, _)| Json::from(k))
+                    .collect(),
+            ),
+        );
+    }
     let mut r = Json::object();
     r.set("steps", fit.refinement_steps)
         .set("corrections", fit.refinement_history.as_slice());
@@ -277,6 +308,29 @@ pub fn fit_human_at(problem: &LsqProblem, fit: &Fit, level: f64) -> String {
             let _ = writeln!(s, "    restriction {i}: {}{dep}", num(*y, 10));
         }
     }
+    if !fit.inequality_restrictions.is_empty() {
+        let active = fit.inequality_restrictions.iter().filter(|r| r.active).count();
+        let _ = writeln!(
+            s,
+            "  inequalities  {active} of {} active; z ≥ 0 is the price (raising the bound by 1 changes ½·RSS by −z for ≤, +z for ≥):",
+            fit.inequality_restrictions.len()
+        );
+        for r in &fit.inequality_restrictions {
+            let state = if r.active {
+                format!("active, z = {}", num(r.multiplier, 8))
+            } else {
+                "inactive".to_string()
+            };
+            let _ = writeln!(
+                s,
+                "    line {}: {} {} {} ({state})",
+                r.line,
+                num(r.value, 10),
+                relation_word(r.relation),
+                num(r.rhs, 10)
+            );
+        }
+    }
     if let Some(t) = &fit.restriction_test {
         let _ = writeln!(
             s,
@@ -312,4 +366,12 @@ pub fn fit_human_at(problem: &LsqProblem, fit: &Fit, level: f64) -> String {
         let _ = writeln!(s, "  note          {n}");
     }
     s
+}
+
+fn relation_word(r: super::restrict::Relation) -> &'static str {
+    match r {
+        super::restrict::Relation::AtMost => "<=",
+        super::restrict::Relation::AtLeast => ">=",
+        super::restrict::Relation::Equal => "=",
+    }
 }

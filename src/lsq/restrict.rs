@@ -1,12 +1,14 @@
 //! Restrictions written against coefficient names: a small equation syntax of our own.
 //!
-//! One restriction per line (or separated by `;`). Each is a linear equation in the
-//! coefficient names with numeric constants:
+//! One restriction per line (or separated by `;`). Each is a linear equation or
+//! inequality in the coefficient names with numeric constants:
 //!
 //! ```text
 //! x1 + x2 = 1
 //! 2*x3 - x4 = 0
 //! gnp = 0.5 * deflator - 3     # a comment runs to the end of the line
+//! x5 >= 0                      # an inequality restriction (also written ≥)
+//! x1 - x2 <= 2.5               # (also written ≤)
 //! ```
 //!
 //! * a term is `NUMBER`, `NAME`, `NUMBER*NAME` or `NUMBER NAME` (`2 x3`), joined by `+` or
@@ -14,8 +16,9 @@
 //! * names start with a letter or `_` and continue with letters, digits, `_` or `.`; numbers
 //!   are decimal with an optional exponent (`1e-3`, `.5`);
 //! * a name may appear more than once and on both sides (its coefficients are added);
-//! * blank lines and text after `#` are ignored; every equation needs exactly one `=` and at
-//!   least one name with a nonzero total coefficient.
+//! * blank lines and text after `#` are ignored; every restriction needs exactly one
+//!   relation (`=`, `<=`/`≤` or `>=`/`≥`; strict `<` and `>` are refused, the feasible set of
+//!   a fit is closed) and at least one name with a nonzero total coefficient.
 //!
 //! Errors name the restriction by its 1-based line and the 1-based character where the
 //! trouble starts.
@@ -24,7 +27,19 @@ use crate::error::{Error, Result};
 
 use super::FitBlock;
 
-/// One parsed restriction: `Σ coef·β[index] = rhs`, with the 1-based line it came from.
+/// The relation of a restriction between its terms and its right-hand side.
+#[derive(Copy, Clone, Debug, PartialEq, Eq)]
+pub enum Relation {
+    /// `Σ coef·β = rhs`.
+    Equal,
+    /// `Σ coef·β ≤ rhs` (written `<=` or `≤`).
+    AtMost,
+    /// `Σ coef·β ≥ rhs` (written `>=` or `≥`).
+    AtLeast,
+}
+
+/// One parsed restriction: `Σ coef·β[index] (=, ≤ or ≥) rhs`, with the 1-based line it came
+/// from.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Restriction {
     /// `(coefficient index, factor)`, indices increasing, no zero factors.
@@ -33,6 +48,24 @@ pub struct Restriction {
     pub rhs: f64,
     /// The 1-based line of the text (or `;`-separated item number on one line).
     pub line: usize,
+    /// `=`, `≤` or `≥`.
+    pub relation: Relation,
+}
+
+impl Restriction {
+    /// `Σ coef·β[index]` at `beta`.
+    pub fn value(&self, beta: &[f64]) -> f64 {
+        self.terms.iter().map(|&(j, v)| v * beta[j]).sum()
+    }
+
+    /// The restriction as `Σ a·β ≤ u` (an `≥` one negated); `None` for an equation.
+    pub fn as_upper(&self) -> Option<(Vec<(usize, f64)>, f64)> {
+        match self.relation {
+            Relation::Equal => None,
+            Relation::AtMost => Some((self.terms.clone(), self.rhs)),
+            Relation::AtLeast => Some((self.terms.iter().map(|&(j, v)| (j, -v)).collect(), -self.rhs)),
+        }
+    }
 }
 
 fn err(line: usize, column: usize, detail: impl Into<String>) -> Error {
@@ -55,6 +88,8 @@ enum Tok {
     Minus,
     Star,
     Eq,
+    Le,
+    Ge,
 }
 
 fn lex(text: &str, line: usize) -> Result<Vec<(Tok, usize)>> {
@@ -78,6 +113,19 @@ fn lex(text: &str, line: usize) -> Result<Vec<(Tok, usize)>> {
         } else if c == '=' {
             out.push((Tok::Eq, col));
             i += 1;
+        } else if c == '≤' || c == '≥' {
+            out.push((if c == '≤' { Tok::Le } else { Tok::Ge }, col));
+            i += 1;
+        } else if c == '<' || c == '>' {
+            if chars.get(i + 1) != Some(&'=') {
+                return Err(err(
+                    line,
+                    col,
+                    format!("strict '{c}' is not a restriction: write '{c}=' (the feasible set is closed)"),
+                ));
+            }
+            out.push((if c == '<' { Tok::Le } else { Tok::Ge }, col));
+            i += 2;
         } else if c.is_ascii_digit() || c == '.' {
             let start = i;
             while i < chars.len() && (chars[i].is_ascii_digit() || chars[i] == '.') {
@@ -192,7 +240,7 @@ fn side(
                 coef[j] += s * factor;
             }
             Tok::Star => return Err(err(line, *col, "'*' without a number before it")),
-            Tok::Eq => return Err(err(line, *col, "more than one '='")),
+            Tok::Eq | Tok::Le | Tok::Ge => return Err(err(line, *col, "more than one '=' or inequality sign")),
             Tok::Plus | Tok::Minus => unreachable!("signs were consumed above"),
         }
     }
@@ -244,15 +292,20 @@ pub fn parse(text: &str, names: &[String]) -> Result<Vec<Restriction>> {
             let eqs: Vec<usize> = toks
                 .iter()
                 .enumerate()
-                .filter(|(_, t)| t.0 == Tok::Eq)
+                .filter(|(_, t)| matches!(t.0, Tok::Eq | Tok::Le | Tok::Ge))
                 .map(|(k, _)| k)
                 .collect();
             if eqs.is_empty() {
-                return Err(err(line, item_offset + 1, "a restriction needs '='"));
+                return Err(err(line, item_offset + 1, "a restriction needs '=', '<=' or '>='"));
             }
             if eqs.len() > 1 {
-                return Err(err(line, toks[eqs[1]].1, "more than one '='"));
+                return Err(err(line, toks[eqs[1]].1, "more than one '=' or inequality sign"));
             }
+            let relation = match toks[eqs[0]].0 {
+                Tok::Le => Relation::AtMost,
+                Tok::Ge => Relation::AtLeast,
+                _ => Relation::Equal,
+            };
             let (lhs, rhs) = (&toks[..eqs[0]], &toks[eqs[0] + 1..]);
             let mut coef = vec![0.0; names.len()];
             let mut constant = 0.0;
@@ -275,10 +328,17 @@ pub fn parse(text: &str, names: &[String]) -> Result<Vec<Restriction>> {
                 terms,
                 rhs: -constant,
                 line,
+                relation,
             });
         }
     }
     Ok(out)
+}
+
+/// Splits parsed restrictions into the equations and the inequalities, each in the
+/// order written.
+pub fn split(all: Vec<Restriction>) -> (Vec<Restriction>, Vec<Restriction>) {
+    all.into_iter().partition(|r| r.relation == Relation::Equal)
 }
 
 #[cfg(test)]
@@ -321,5 +381,23 @@ mod tests {
         }
         let e = parse("a = 1\n\n b + q = 0", &names()).unwrap_err().to_string();
         assert!(e.contains("line 3, character 6"), "{e}");
+        for (text, want) in [("a < 1", "strict '<'"), ("a >= b <= 1", "more than one")] {
+            let e = parse(text, &names()).unwrap_err().to_string();
+            assert!(e.contains(want), "{text}: {e}");
+        }
+    }
+
+    #[test]
+    fn inequalities() {
+        let r = parse("a >= 0; 2 b - c.d <= 1.5; _e ≥ -1; a ≤ b", &names()).unwrap();
+        let rel: Vec<Relation> = r.iter().map(|r| r.relation).collect();
+        use Relation::*;
+        assert_eq!(rel, [AtLeast, AtMost, AtLeast, AtMost]);
+        assert_eq!(r[1].terms, vec![(1, 2.0), (2, -1.0)]);
+        assert_eq!(r[1].rhs, 1.5);
+        assert_eq!(r[0].as_upper(), Some((vec![(0, -1.0)], -0.0)));
+        assert_eq!(r[3].terms, vec![(0, 1.0), (1, -1.0)]);
+        assert_eq!(r[3].rhs, 0.0);
+        assert_eq!(parse("a = 1", &names()).unwrap()[0].relation, Equal);
     }
 }
