@@ -88,6 +88,25 @@ fn bench(c: &mut Criterion) {
                 })
             },
         );
+        // The same without the forward-error certification (κ estimate and equilibration),
+        // accepted by the backward error as the interior-point steps are: the like-for-like
+        // yardstick of the work one Newton step repeats.
+        let opts_bw = Options {
+            accept_forward_error: f64::INFINITY,
+            ..opts
+        };
+        let mut f_bw = Plan::analyze(&p, &opts_bw).unwrap().factor(&p).unwrap();
+        let mut ws_bw = f_bw.workspace();
+        group.bench_with_input(
+            BenchmarkId::new("equality_riccati_factor_solve_by_backward_error", horizon),
+            &horizon,
+            |b, _| {
+                b.iter(|| {
+                    f_bw.refactor(&p).unwrap();
+                    f_bw.solve_into(p.linear(), p.rhs(), &mut ws_bw, &mut s).unwrap();
+                })
+            },
+        );
     }
     group.finish();
 }

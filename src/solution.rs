@@ -181,7 +181,8 @@ pub struct Solution {
     /// on `DKD` and `D` the Ruiz scaling of K (see [`crate::kkt::equilibrate`] and
     /// [`crate::diagnostics::condition::forward_error_bound`]). Every direct solve returned
     /// `Ok` has a bound at most `Options::accept_forward_error`; `None` for the iterative
-    /// methods, whose acceptance is by residual, and for the distributed path (feature
+    /// methods, whose acceptance is by residual, for direct solves with
+    /// `Options::accept_forward_error = +∞` (the rule switched off), and for the distributed path (feature
     /// `mpi`), which is accepted by its backward error and does not estimate κ yet.
     pub forward_error_bound: Option<f64>,
     /// Iterative refinement corrections applied.

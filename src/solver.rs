@@ -109,11 +109,15 @@ pub struct Options {
     /// Stop refining once the backward error is at most this. Default:
     /// [`DEFAULT_REFINEMENT_TARGET`].
     pub refinement_target: f64,
-    /// Iterative (MINRES) backend only: refuse solutions whose backward error stays above
-    /// this. Default: [`DEFAULT_ACCEPT_BACKWARD_ERROR`].
+    /// Iterative (MINRES) backend, and direct methods with `accept_forward_error = +∞`:
+    /// refuse solutions whose backward error stays above this. Default:
+    /// [`DEFAULT_ACCEPT_BACKWARD_ERROR`].
     pub accept_backward_error: f64,
     /// Direct methods: refuse (after the dense fallback) solutions whose forward-error bound
-    /// is above this or missing. Default: [`DEFAULT_ACCEPT_FORWARD_ERROR`].
+    /// is above this or missing. Default: [`DEFAULT_ACCEPT_FORWARD_ERROR`]. `+∞` switches
+    /// the rule off: solves are then accepted by `accept_backward_error`, no condition
+    /// number is estimated (cheaper) and `Solution::forward_error_bound` is `None`. For
+    /// callers that certify the answer otherwise (the inequality solver's Newton steps).
     pub accept_forward_error: f64,
     /// Largest KKT order for which a singular K found by another method is handed to the
     /// dense null-space rank analysis; larger sparse problems are analyzed with the sparse
@@ -546,6 +550,13 @@ impl Factorization {
     }
 
     fn refresh_equilibration(&mut self) {
+        // With the forward-error rule off (`accept_forward_error = +∞`, the inequality
+        // solver's Newton steps) no solve uses the scaling; keep the first one (any positive
+        // D gives a valid κ₁(DKD) bound, only its tightness depends on D) and save the Ruiz
+        // sweeps, which were a third of an interior-point iteration on stage-wise problems.
+        if self.plan.options.accept_forward_error == f64::INFINITY {
+            return;
+        }
         self.norm_eq = kkt::equilibrate::ruiz_into(&self.problem, &mut self.eq, &mut self.norm_rows);
     }
 
@@ -720,8 +731,9 @@ impl Factorization {
             kkt::residual_and_gradient(&self.problem, z, rhs, r, grad);
         }
         let backward_error = normwise(r, self.norm_k, z, rhs);
-        let iterative = self.backend.method() == MethodUsed::Minres;
-        let forward_error_bound = if iterative {
+        let by_backward_error =
+            self.backend.method() == MethodUsed::Minres || self.plan.options.accept_forward_error == f64::INFINITY;
+        let forward_error_bound = if by_backward_error {
             if backward_error.is_nan() || backward_error > self.plan.options.accept_backward_error {
                 return Err(Error::Inaccurate {
                     backward_error,

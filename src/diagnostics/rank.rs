@@ -25,9 +25,12 @@
 //! preference for earlier rows), so the rank, the dependent rows and the consistency test do
 //! not change when a row of `A` and its `b` entry are multiplied by any factor; the
 //! tolerance `τ` above is applied to the `R` of the weighted `Aᵀ` (whose columns have norm
-//! in `[0.35, 1.4]`). When rows tie (duplicates, exact sums), the pivoting keeps the rows
-//! written first and drops the later ones; this is a preference, not a rule: pivoting still
-//! keeps the best-conditioned set when rows are near-dependent. Column scaling of `A` is not
+//! in `[0.35, 1.4]`). **Which rows are dropped.** With dependent rows, the rows
+//! written first are kept and the later dependent ones dropped: a greedy pass in the order
+//! written keeps each row that adds at least a fraction 1e-3 of its (equilibrated) norm to
+//! the rows kept before it, and when it finds as many rows as the rank, `Aᵀ` is factored
+//! again unpivoted with those rows first. When it does not (near-dependent rows), or for very
+//! large `A`, the pivoted choice stands: the best-conditioned set, whatever the order. Column scaling of `A` is not
 //! equilibrated here (it would make the null-space basis non-orthogonal).
 //!
 //! ```
@@ -168,14 +171,29 @@ impl RankAnalysis {
         }
         let qr = at.col_piv_qr();
         let (fwd, _) = qr.P().arrays();
-        let order: Vec<usize> = fwd.to_vec();
+        let mut order: Vec<usize> = fwd.to_vec();
         let size = m.min(n);
-        let scaled_r = qr.R().get(..size, ..).to_owned();
+        let mut scaled_r = qr.R().get(..size, ..).to_owned();
         let r00 = scaled_r[(0, 0)].abs();
         let threshold = factor * (m.max(n) as f64) * f64::EPSILON * r00;
         let mut rank = 0;
         while rank < size && scaled_r[(rank, rank)].abs() > threshold {
             rank += 1;
+        }
+        let (mut q_basis, mut q_coeff) = (qr.Q_basis().to_owned(), qr.Q_coeff().to_owned());
+        // With dependent rows, keep the rows written first when they form a well-conditioned
+        // basis (the pivoting alone prefers the largest rows): then factor Aᵀ again, unpivoted,
+        // with the kept rows first.
+        if rank < m {
+            if let Some(kept) = written_order_basis(at.as_ref(), rank) {
+                let dropped = (0..m).filter(|i| !kept.contains(i));
+                order = kept.iter().copied().chain(dropped).collect();
+                let permuted = Mat::from_fn(n, m, |i, k| at[(i, order[k])]);
+                let qr = permuted.qr();
+                scaled_r = qr.R().get(..size, ..).to_owned();
+                q_basis = qr.Q_basis().to_owned();
+                q_coeff = qr.Q_coeff().to_owned();
+            }
         }
         // R of the unscaled Aᵀ P: Aᵀ = (Aᵀ D) D⁻¹, so column k of R is divided by the
         // weight of row order[k].
@@ -191,8 +209,8 @@ impl RankAnalysis {
             rank,
             threshold,
             order,
-            q_basis: qr.Q_basis().to_owned(),
-            q_coeff: qr.Q_coeff().to_owned(),
+            q_basis,
+            q_coeff,
             r,
             comb,
             weights,
@@ -295,11 +313,11 @@ impl RankAnalysis {
                 let d = &c.dependency;
                 let combo: f64 = d.terms.iter().map(|(i, a)| a * b[*i]).sum();
                 format!(
-                    "{d}, but b[{}] = {} while the same combination of b gives {} (contradiction {:.3e})",
+                    "{d}, but b[{}] = {} while the same combination of b gives {} (they differ by {})",
                     d.row,
-                    b[d.row],
-                    combo,
-                    c.gap.abs()
+                    crate::report::num(b[d.row], 10),
+                    crate::report::num(combo, 10),
+                    crate::report::num(c.gap.abs(), 4)
                 )
             })
             .collect::<Vec<_>>()
@@ -372,6 +390,50 @@ impl RankAnalysis {
 /// Weight of each row of `A` in the rank decision: `2^(−round(log₂‖row‖₂))` (exact, brings
 /// the row to norm in `[0.7, 1.4]`) times `1 − ½·i/m` (the preference for earlier rows);
 /// 1 for a zero row.
+/// A floor on the part of a kept row that is new (relative to its equilibrated norm) when
+/// rows are kept in the order written: a row that adds less than this is treated as
+/// dependent by the greedy pass, so the basis it keeps has a bounded condition (common
+/// practice for threshold pivoting).
+const WRITTEN_ORDER_FLOOR: f64 = 1e-3;
+/// Work limit (m·rank·n multiply-adds) of the greedy written-order pass.
+const WRITTEN_ORDER_MAX_WORK: f64 = 4e9;
+
+/// The first `rank` rows (columns of the equilibrated `Aᵀ`), in the order written, each
+/// adding a component of at least [`WRITTEN_ORDER_FLOOR`] of its norm to those before it
+/// (modified Gram–Schmidt, twice). `None` when the greedy pass does not find `rank` such
+/// rows (then the pivoted choice stands) or the work would be too large.
+fn written_order_basis(at: MatRef<'_, f64>, rank: usize) -> Option<Vec<usize>> {
+    let (n, m) = (at.nrows(), at.ncols());
+    if rank == 0 || (m as f64) * (rank as f64) * (n as f64) > WRITTEN_ORDER_MAX_WORK {
+        return None;
+    }
+    let mut basis: Vec<Vec<f64>> = Vec::with_capacity(rank);
+    let mut kept = Vec::with_capacity(rank);
+    for i in 0..m {
+        if kept.len() == rank {
+            break;
+        }
+        let mut v: Vec<f64> = at.col(i).iter().copied().collect();
+        let norm0 = crate::problem::norm2(&v);
+        if norm0 == 0.0 || !norm0.is_finite() {
+            continue;
+        }
+        for _ in 0..2 {
+            for q in &basis {
+                let d = crate::problem::dot(q, &v);
+                v.iter_mut().zip(q).for_each(|(vi, qi)| *vi -= d * qi);
+            }
+        }
+        let norm = crate::problem::norm2(&v);
+        if norm > WRITTEN_ORDER_FLOOR * norm0 {
+            v.iter_mut().for_each(|x| *x /= norm);
+            basis.push(v);
+            kept.push(i);
+        }
+    }
+    (kept.len() == rank).then_some(kept)
+}
+
 fn row_weights(a: MatRef<'_, f64>) -> Vec<f64> {
     let m = a.nrows();
     (0..m)
@@ -451,6 +513,24 @@ mod tests {
             let b: Vec<f64> = (0..4).map(|i| [1.0, 1.0, 1.0, 2.0][i] * s[i]).collect();
             let b = if name == "plain" { vec![1.0, 1.0, 1.0, 2.0] } else { b };
             assert!(r.check_rhs(&b, 1e-9).is_ok(), "{name}");
+        }
+    }
+
+    /// A later row that is a combination of earlier ones is the one dropped, even when it
+    /// is the largest (the pivoting alone would keep it).
+    #[test]
+    fn drops_the_later_dependent_row() {
+        let a = faer::mat![[1.0, 1.0, 2.0], [1.0, -1.0, 0.0], [2.0, 0.0, 2.0], [0.0, 0.0, 1.0]];
+        let r = RankAnalysis::new(a.as_ref(), 1.0);
+        assert_eq!(r.rank(), 3);
+        assert_eq!(r.dependent_rows(), vec![2]);
+        let d = &r.dependencies()[0];
+        assert_eq!(d.row, 2);
+        let mut rows: Vec<usize> = d.terms.iter().map(|t| t.0).collect();
+        rows.sort_unstable();
+        assert_eq!(rows, vec![0, 1]);
+        for &(row, coef) in &d.terms {
+            assert!((coef - 1.0).abs() < 1e-14, "row {row}: {coef}");
         }
     }
 
