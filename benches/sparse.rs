@@ -5,6 +5,9 @@
 //! Run: `cargo bench --bench sparse` (sizes from `TANGENCY_BENCH_K`, default
 //! "100,200,300"; set `TANGENCY_BENCH_CROSSOVER=0` to skip the crossover group).
 //! Problem directories are written to `target/bench-problems/poisson-control-K`.
+//! The `threads` group compares one thread, the analysis's thread rule and two threads
+//! forced, with MKL PARDISO (`reference_solve.py --method pardiso`) at 1 and 2 threads
+//! printed beside it; `scripts/compare_sparse.py` makes the full side-by-side table.
 
 use std::hint::black_box;
 use std::path::{Path, PathBuf};
@@ -178,5 +181,86 @@ fn crossover(c: &mut Criterion) {
     group.finish();
 }
 
-criterion_group!(benches, crossover, poisson);
+/// PARDISO's phase times (MKL_NUM_THREADS = `threads`) from `reference_solve.py --method
+/// pardiso`: (factor, refactor, analyze+factor+solve).
+fn pardiso_seconds(dir: &Path, threads: usize) -> Option<(f64, f64, f64)> {
+    let script = [
+        concat!(env!("CARGO_MANIFEST_DIR"), "/../shared/tools/reference_solve.py"),
+        concat!(env!("CARGO_MANIFEST_DIR"), "/../../shared/tools/reference_solve.py"),
+    ]
+    .into_iter()
+    .find(|p| Path::new(p).exists())?;
+    let out = Command::new("python3")
+        .args([script, dir.to_str()?, "--method", "pardiso", "--repeat", "3"])
+        .env("MKL_NUM_THREADS", threads.to_string())
+        .env("OMP_NUM_THREADS", threads.to_string())
+        .output()
+        .ok()?;
+    let text = String::from_utf8_lossy(&out.stdout);
+    let get = |key: &str| -> Option<f64> {
+        let key = format!("\"{key}\": ");
+        let start = text.find(&key)? + key.len();
+        let end = text[start..].find([',', '}'])? + start;
+        text[start..end].trim().parse().ok()
+    };
+    Some((
+        get("factor_s")?,
+        get("refactor_s")?,
+        get("analyze_s")? + get("factor_s")? + get("solve_s")?,
+    ))
+}
+
+/// One against two threads (the analysis's rule, and two threads forced) on Poisson control
+/// and the heat cube, with PARDISO at the same thread count in the same run. Families and
+/// sizes from `TANGENCY_BENCH_THREADS_CASES` (default "poisson-control:100,heat-cube:20").
+fn threads(c: &mut Criterion) {
+    let cases =
+        std::env::var("TANGENCY_BENCH_THREADS_CASES").unwrap_or_else(|_| "poisson-control:100,heat-cube:20".into());
+    for case in cases.split(',') {
+        let Some((family, k)) = case.split_once(':') else {
+            continue;
+        };
+        let (Ok(family), Ok(k)) = (family.parse::<Family>(), k.parse::<usize>()) else {
+            continue;
+        };
+        let dir =
+            PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/target/bench-problems")).join(case.replace(':', "-"));
+        if !dir.join("H.mtx").exists() {
+            write_family(family, k, &dir).expect("write problem directory");
+        }
+        let p: Problem = tangency::io::read_problem_dir(&dir).expect("read problem directory");
+        let mut group = c.benchmark_group(format!("threads {case} (N={})", p.n() + p.m()));
+        group.sample_size(10);
+        for (name, par, min_flops) in [
+            ("1 thread", faer::Par::Seq, f64::INFINITY),
+            (
+                "2 threads, rule",
+                faer::Par::rayon(2),
+                tangency::backend::sparse_ldlt::DEFAULT_PARALLEL_MIN_FRONT_FLOPS,
+            ),
+            ("2 threads, forced", faer::Par::rayon(2), 0.0),
+        ] {
+            let mut o = sparse_options();
+            o.sparse.par = par;
+            o.sparse.parallel_min_front_flops = min_flops;
+            let plan = Plan::analyze(&p, &o).unwrap();
+            group.bench_function(format!("factor, {name}"), |b| {
+                b.iter(|| black_box(plan.factor(&p).unwrap()))
+            });
+            let mut f = plan.factor(&p).unwrap();
+            group.bench_function(format!("refactor, {name}"), |b| b.iter(|| f.refactor(&p).unwrap()));
+        }
+        group.finish();
+        for t in [1, 2] {
+            match pardiso_seconds(&dir, t) {
+                Some((fa, re, tot)) => println!(
+                    "PARDISO {case} threads={t}: factor_s={fa:.4} refactor_s={re:.4} analyze+factor+solve_s={tot:.4}"
+                ),
+                None => println!("PARDISO {case} threads={t}: n/a (pip install numpy scipy pypardiso)"),
+            }
+        }
+    }
+}
+
+criterion_group!(benches, crossover, poisson, threads);
 criterion_main!(benches);

@@ -7,6 +7,7 @@
 pub mod auto;
 pub mod dense_lblt;
 pub mod null_space;
+pub mod ordering;
 pub mod probe;
 pub mod schur;
 pub mod sparse_capacitance;

@@ -25,6 +25,53 @@
 //! LDLᵀ flop count is kept ([`SparseAnalysis::orderings`] lists all predictions). Measured
 //! on Poisson control k = 100: all three predict 4.410e7 flops, so the default tries one.
 //!
+//! Beside AMD, METIS nested dissection ([`super::ordering`], with the same pairing of
+//! constraint rows when it leaves structurally zero pivots) is tried when the AMD
+//! factorization's work ([`OrderingTrial::factor_flops`], from the symbolic factorization,
+//! comparable across orderings) is at least [`NESTED_DISSECTION_MIN_WORK`], and kept when
+//! its work is at most [`NESTED_DISSECTION_GAIN`] of AMD's
+//! ([`SparseParams::nested_dissection`]; the choice is reported in
+//! [`SparseAnalysis::orderings`]). Measured (release build, one thread, medians of 3–5,
+//! machine loaded by other builds, load average 3–4 on 2 cores):
+//!
+//! | case (N) | AMD work | ND work | AMD factor | ND factor | ND analysis cost |
+//! |---|---|---|---|---|---|
+//! | heat-cube 33 (107 811) | 9.6e10 | 4.2e10 | ≈ 8.7 s | 3.9 s | +1.8 s |
+//! | poisson-control 300 (270 000) | 3.1e9 | 2.6e9 (paired) | 0.54 s | 0.62 s | +3.0 s |
+//! | tied lattice 100 (21 107) | 3.0e8 (paired) | 1.7e8 (paired) | 0.054 s | 0.071 s | +0.3 s |
+//! | poisson-control 100 (30 000) | 9.3e7 | 9.6e7 | 0.037 s | 0.043 s | +0.17 s |
+//!
+//! On the 2D families nested dissection has somewhat less work but more, smaller
+//! supernodes and factors slower, and METIS costs more than the factorization: hence the
+//! work floor and the required gain. On the 3D family it halves the factorization.
+//! (The AMD heat-cube figure is the two-thread run; the one-thread AMD run was not
+//! repeated for lack of time.)
+//!
+//! # Threads
+//!
+//! faer's supernodal LDLᵀ walks the supernodes in order (left-looking) and gives the
+//! parallelism only to the dense kernels inside each supernode (update products, the
+//! diagonal block's LDLᵀ, the triangular solve). With two rayon threads every one of the
+//! 10⁴–10⁵ supernodes' kernels pays the pool's dispatch, and most fronts are far too small
+//! to gain from it; there is no tree-level parallelism to use instead. Measured
+//! (`cargo run --release --example sparse_threads -- DIR`, `FORCE_PAR=1`, medians of 5,
+//! load average 3–4 on 2 cores), factor / refactor in seconds, one thread → two:
+//!
+//! | case | large-front flops | one thread | two threads |
+//! |---|---|---|---|
+//! | poisson-control 100 | 1.2e7 | 0.037 / 0.029 | 0.052 / 0.048 |
+//! | tied lattice 100 | 2.2e7 | 0.054 / 0.046 | 0.069 / 0.061 |
+//! | poisson-control 300 | 6.1e8 | 0.54 / 0.50 | 0.78 / 0.58 |
+//! | heat-cube 33 (ND, fronts up to 3165 columns) | 3.5e10 | 3.9 / 2.9 | 4.3 / 4.3 |
+//!
+//! Two threads were slower on every case, as the quiet-machine figures also show
+//! for the 2D families. The rule ([`ThreadChoice`]): the factorization uses
+//! [`SparseParams::par`] only when the predicted flops in supernodes of at least
+//! [`PARALLEL_FRONT_COLUMNS`] columns reach [`SparseParams::parallel_min_front_flops`];
+//! the default threshold is infinite (always one thread), because no measured case gained.
+//! A finite threshold opts in where a quiet machine shows a gain. The choice depends on the
+//! pattern and the settings only, so it is deterministic; solves are always sequential.
+//!
 //! # Regularization (scale-aware, on the equilibrated K̃ whose entries are at most ≈ 1)
 //!
 //! * Threshold `τ = pivot_threshold · N · ε` (N = n + m; the dense backend calls pivots of
@@ -90,6 +137,21 @@ pub enum Supernodes {
     Always,
 }
 
+/// When the analysis tries nested dissection (METIS) beside AMD.
+#[derive(Copy, Clone, Debug, PartialEq, Eq, Default)]
+#[non_exhaustive]
+pub enum NestedDissection {
+    /// From [`NESTED_DISSECTION_MIN_ORDER`] unknowns and [`NESTED_DISSECTION_MIN_WORK`] AMD
+    /// work; kept when its work is at most [`NESTED_DISSECTION_GAIN`] of AMD's (default).
+    #[default]
+    Auto,
+    /// Never (AMD only).
+    Never,
+    /// Always, and kept unless it has more structurally zero pivots than AMD (for tests
+    /// and comparisons).
+    Always,
+}
+
 /// Settings of the sparse backend (see the module docs for the rules they enter).
 #[derive(Copy, Clone, Debug)]
 pub struct SparseParams {
@@ -117,9 +179,19 @@ pub struct SparseParams {
     /// (a structurally zero pivot), order each constraint row right after a variable
     /// matched to it instead (see the module docs). Default: true.
     pub paired_ordering: bool,
-    /// Parallelism of the numeric factorization. Default: all threads (faer/rayon).
-    /// Solves always run sequentially.
+    /// When to try METIS nested dissection beside AMD (module docs, "Ordering"). Default:
+    /// [`NestedDissection::Auto`].
+    pub nested_dissection: NestedDissection,
+    /// Most parallelism the numeric factorization may use. Default: all threads
+    /// (faer/rayon). The analysis uses it only when the factorization has enough work in
+    /// large fronts (see [`SparseParams::parallel_min_front_flops`] and the module docs
+    /// "Threads"); otherwise it runs sequentially. Solves always run sequentially.
     pub par: Par,
+    /// Predicted flops in large fronts (supernodes of at least [`PARALLEL_FRONT_COLUMNS`]
+    /// columns) from which the factorization runs on [`SparseParams::par`]; below it, on
+    /// one thread. `0.0` always uses `par`, `f64::INFINITY` never. Default:
+    /// [`DEFAULT_PARALLEL_MIN_FRONT_FLOPS`].
+    pub parallel_min_front_flops: f64,
 }
 
 /// `√ε`, the default forced-pivot magnitude.
@@ -142,8 +214,78 @@ impl Default for SparseParams {
             ordering_trials: 1,
             supernodes: Supernodes::Auto,
             paired_ordering: true,
+            nested_dissection: NestedDissection::Auto,
             par: Par::rayon(0),
+            parallel_min_front_flops: DEFAULT_PARALLEL_MIN_FRONT_FLOPS,
         }
+    }
+}
+
+/// Supernodes with at least this many columns count as large fronts for the thread rule
+/// (module docs, "Threads").
+pub const PARALLEL_FRONT_COLUMNS: usize = 256;
+
+/// Default [`SparseParams::parallel_min_front_flops`] (measured, module docs "Threads").
+pub const DEFAULT_PARALLEL_MIN_FRONT_FLOPS: f64 = f64::INFINITY;
+
+/// How the analysis chose the parallelism of the numeric factorization (module docs,
+/// "Threads"). A function of the pattern and the settings only, so the same problem always
+/// gets the same choice.
+#[derive(Copy, Clone, Debug, PartialEq)]
+pub struct ThreadChoice {
+    /// Threads allowed by [`SparseParams::par`] (1 for `Par::Seq`; `Par::rayon(0)` is
+    /// resolved to the pool size).
+    pub allowed: usize,
+    /// Threads the numeric factorization uses (1 or `allowed`).
+    pub used: usize,
+    /// Predicted dense flops of the supernodal factorization, all supernodes
+    /// (`c³/3 + c²p + cp²` for a supernode of `c` columns and `p` rows below them); 0 for a
+    /// simplicial factorization.
+    pub front_flops: f64,
+    /// The part of [`ThreadChoice::front_flops`] in supernodes of at least
+    /// [`PARALLEL_FRONT_COLUMNS`] columns.
+    pub large_front_flops: f64,
+    /// Columns of the widest supernode (0 for a simplicial factorization).
+    pub widest_front: usize,
+    /// Number of supernodes (0 for a simplicial factorization).
+    pub supernodes: usize,
+}
+
+/// The thread rule of the module docs: parallel only for a supernodal factorization whose
+/// large fronts carry at least `min_flops` predicted flops.
+fn choose_threads(symbolic: &SymbolicCholesky<usize>, par: Par, min_flops: f64) -> (Par, ThreadChoice) {
+    let allowed = match par {
+        Par::Seq => 1,
+        Par::Rayon(n) => n.get(),
+    };
+    let mut choice = ThreadChoice {
+        allowed,
+        used: 1,
+        front_flops: 0.0,
+        large_front_flops: 0.0,
+        widest_front: 0,
+        supernodes: 0,
+    };
+    if let SymbolicCholeskyRaw::Supernodal(s) = symbolic.raw() {
+        let (begin, end) = (s.supernode_begin(), s.supernode_end());
+        choice.supernodes = s.n_supernodes();
+        for k in 0..s.n_supernodes() {
+            let cols = end[k] - begin[k];
+            let (c, p) = (cols as f64, s.supernode(k).pattern().len() as f64);
+            let w = c * c * c / 3.0 + c * c * p + c * p * p;
+            choice.front_flops += w;
+            choice.widest_front = choice.widest_front.max(cols);
+            if cols >= PARALLEL_FRONT_COLUMNS {
+                choice.large_front_flops += w;
+            }
+        }
+    }
+    let parallel = allowed > 1 && choice.supernodes > 0 && choice.large_front_flops >= min_flops;
+    if parallel {
+        choice.used = allowed;
+        (par, choice)
+    } else {
+        (Par::Seq, choice)
     }
 }
 
@@ -152,8 +294,51 @@ impl Default for SparseParams {
 pub struct OrderingTrial {
     /// Name of the ordering.
     pub name: &'static str,
-    /// Predicted LDLᵀ flops (divisions + multiply-subtracts).
+    /// Predicted LDLᵀ flops (divisions + multiply-subtracts) as AMD predicts them on its
+    /// compressed graph; NaN for orderings AMD did not make.
     pub flops: f64,
+    /// Work of the symbolic factorization made with this ordering, `Σ_k (r_k + r_k²)` with
+    /// `r_k` the stored entries below the diagonal of column k of L (supernodal storage
+    /// counts its dense blocks): comparable across orderings. NaN when not computed (AMD
+    /// settings that lost on [`OrderingTrial::flops`]).
+    pub factor_flops: f64,
+}
+
+/// Nested dissection is tried beside AMD from this KKT order (below it AMD's orderings are
+/// as good and the extra symbolic analysis would dominate the analysis time).
+pub const NESTED_DISSECTION_MIN_ORDER: usize = 2000;
+
+/// Nested dissection is tried only when the AMD ordering's factorization work
+/// ([`OrderingTrial::factor_flops`]) is at least this (METIS costs 1–4 s of analysis on
+/// 10⁵ unknowns; measured in the module docs, "Ordering").
+pub const NESTED_DISSECTION_MIN_WORK: f64 = 1.0e10;
+
+/// Nested dissection is kept when its work is at most this fraction of AMD's.
+pub const NESTED_DISSECTION_GAIN: f64 = 0.75;
+
+/// The work measure of [`OrderingTrial::factor_flops`] for a symbolic factorization.
+fn factor_flops(symbolic: &SymbolicCholesky<usize>) -> f64 {
+    let mut w = 0.0;
+    match symbolic.raw() {
+        SymbolicCholeskyRaw::Simplicial(s) => {
+            for k in 0..s.nrows() {
+                let r = (s.col_ptr()[k + 1] - s.col_ptr()[k]).saturating_sub(1) as f64;
+                w += r + r * r;
+            }
+        }
+        SymbolicCholeskyRaw::Supernodal(s) => {
+            let (begin, end) = (s.supernode_begin(), s.supernode_end());
+            for k in 0..s.n_supernodes() {
+                let c = end[k] - begin[k];
+                let p = s.supernode(k).pattern().len();
+                for t in 0..c {
+                    let r = (c - 1 - t + p) as f64;
+                    w += r + r * r;
+                }
+            }
+        }
+    }
+    w
 }
 
 /// The symbolic analysis of one KKT pattern, shared by every factorization made from it.
@@ -166,6 +351,8 @@ pub struct SparseAnalysis {
     factor_scratch: StackReq,
     params: SparseParams,
     zero_pivots: (usize, usize),
+    par: Par,
+    threads: ThreadChoice,
 }
 
 const AMD_CANDIDATES: [(&str, f64, bool); 3] = [
@@ -202,7 +389,11 @@ impl SparseAnalysis {
                 )
                 .map_err(|e| resources("AMD ordering", e))?;
                 let flops = flops.n_div + flops.n_mult_subs_ldl;
-                orderings.push(OrderingTrial { name, flops });
+                orderings.push(OrderingTrial {
+                    name,
+                    flops,
+                    factor_flops: f64::NAN,
+                });
                 if best.is_none() || flops < orderings[chosen].flops {
                     chosen = orderings.len() - 1;
                     best = Some((perm, perm_inv));
@@ -220,12 +411,13 @@ impl SparseAnalysis {
         };
         let mut zero_pivots = amd_zero_pivots;
         if amd_zero_pivots > 0 && params.paired_ordering {
-            if let Some((pp, pi)) = paired_order(&pattern, problem)? {
+            if let Some((pp, pi)) = paired_order(&pattern, problem, false)? {
                 zero_pivots = structural_zero_pivots(&pattern, &pi);
                 // AMD's flop prediction is for the compressed graph: not comparable, not kept.
                 orderings.push(OrderingTrial {
                     name: "paired amd",
                     flops: f64::NAN,
+                    factor_flops: f64::NAN,
                 });
                 chosen = orderings.len() - 1;
                 perm = pp;
@@ -237,23 +429,70 @@ impl SparseAnalysis {
             Supernodes::Never => SupernodalThreshold::FORCE_SIMPLICIAL,
             Supernodes::Always => SupernodalThreshold::FORCE_SUPERNODAL,
         };
-        let ordering = if dim > 0 {
-            SymmetricOrdering::Custom(faer::perm::PermRef::new_checked(&perm, &perm_inv, dim))
-        } else {
-            SymmetricOrdering::Identity
+        let symbolic_of = |perm: &[usize], perm_inv: &[usize]| {
+            let ordering = if dim > 0 {
+                SymmetricOrdering::Custom(faer::perm::PermRef::new_checked(perm, perm_inv, dim))
+            } else {
+                SymmetricOrdering::Identity
+            };
+            factorize_symbolic_cholesky(
+                pattern.symbolic(),
+                Side::Lower,
+                ordering,
+                CholeskySymbolicParams {
+                    supernodal_flop_ratio_threshold: threshold,
+                    ..Default::default()
+                },
+            )
+            .map_err(|e| resources("symbolic factorization", e))
         };
-        let symbolic = factorize_symbolic_cholesky(
-            pattern.symbolic(),
-            Side::Lower,
-            ordering,
-            CholeskySymbolicParams {
-                supernodal_flop_ratio_threshold: threshold,
-                ..Default::default()
-            },
-        )
-        .map_err(|e| resources("symbolic factorization", e))?;
-        let factor_scratch =
-            symbolic.factorize_numeric_ldlt_scratch::<f64>(params.par, Spec::<LdltParams, f64>::default());
+        let mut symbolic = symbolic_of(&perm, &perm_inv)?;
+        if let Some(t) = orderings.get_mut(chosen) {
+            t.factor_flops = factor_flops(&symbolic);
+        }
+        // Nested dissection beside the AMD choice: same pairing rule, kept when its symbolic
+        // factorization has less work (module docs, "Ordering").
+        let amd_work = orderings.get(chosen).map_or(0.0, |t| t.factor_flops);
+        let try_nd = match params.nested_dissection {
+            NestedDissection::Never => false,
+            NestedDissection::Always => dim > 0,
+            NestedDissection::Auto => dim >= NESTED_DISSECTION_MIN_ORDER && amd_work >= NESTED_DISSECTION_MIN_WORK,
+        };
+        if try_nd {
+            let sym = pattern.symbolic();
+            let (mut np, mut ni) = crate::backend::ordering::nested_dissection(dim, sym.col_ptr(), sym.row_idx())?;
+            let mut name = "nested dissection";
+            let mut nd_zero = structural_zero_pivots(&pattern, &ni);
+            if nd_zero > 0 && params.paired_ordering {
+                if let Some((pp, pi)) = paired_order(&pattern, problem, true)? {
+                    nd_zero = structural_zero_pivots(&pattern, &pi);
+                    name = "paired nested dissection";
+                    np = pp;
+                    ni = pi;
+                }
+            }
+            let nd_symbolic = symbolic_of(&np, &ni)?;
+            let w = factor_flops(&nd_symbolic);
+            orderings.push(OrderingTrial {
+                name,
+                flops: f64::NAN,
+                factor_flops: w,
+            });
+            // Kept only with no more structurally zero pivots (each is a forced pivot to
+            // correct) and clearly less work: at equal work its smaller supernodes factor
+            // slower than AMD's (module docs, "Ordering").
+            let gain = match params.nested_dissection {
+                NestedDissection::Always => f64::INFINITY,
+                _ => NESTED_DISSECTION_GAIN,
+            };
+            if nd_zero <= zero_pivots && w <= gain * amd_work {
+                chosen = orderings.len() - 1;
+                symbolic = nd_symbolic;
+                zero_pivots = nd_zero;
+            }
+        }
+        let (par, threads) = choose_threads(&symbolic, params.par, params.parallel_min_front_flops);
+        let factor_scratch = symbolic.factorize_numeric_ldlt_scratch::<f64>(par, Spec::<LdltParams, f64>::default());
         Ok(SparseAnalysis {
             pattern,
             symbolic,
@@ -262,7 +501,19 @@ impl SparseAnalysis {
             factor_scratch,
             params: *params,
             zero_pivots: (amd_zero_pivots, zero_pivots),
+            par,
+            threads,
         })
+    }
+
+    /// The parallelism the numeric factorization uses (module docs, "Threads").
+    pub fn parallelism(&self) -> Par {
+        self.par
+    }
+
+    /// Why the analysis chose [`SparseAnalysis::parallelism`].
+    pub fn thread_choice(&self) -> ThreadChoice {
+        self.threads
     }
 
     /// The KKT pattern and value map.
@@ -334,7 +585,7 @@ fn structural_zero_pivots(pattern: &KktPattern, perm_inv: &[usize]) -> usize {
 /// 2007, "An ordering method for the direct solution of saddle-point matrices", uses the same
 /// idea). Written by hand: faer orders graphs, not constrained pairs. Returns
 /// `(perm, perm_inv)`.
-fn paired_order(pattern: &KktPattern, problem: &Problem) -> Result<Option<(Vec<usize>, Vec<usize>)>> {
+fn paired_order(pattern: &KktPattern, problem: &Problem, nested: bool) -> Result<Option<(Vec<usize>, Vec<usize>)>> {
     let (n, dim) = (pattern.n(), pattern.dim());
     let m = dim - n;
     if m == 0 {
@@ -413,21 +664,11 @@ fn paired_order(pattern: &KktPattern, problem: &Problem) -> Result<Option<(Vec<u
     for c in 0..groups {
         gcp[c + 1] += gcp[c];
     }
-    let gsym = faer::sparse::SymbolicSparseColMat::new_checked(groups, groups, gcp, None, gri);
-    let resources = |e: faer::sparse::FaerError| Error::Resources {
-        detail: format!("paired AMD ordering of a graph with {groups} nodes: {e:?}"),
+    let (gp, _) = if nested {
+        crate::backend::ordering::nested_dissection(groups, &gcp, &gri)?
+    } else {
+        pair_amd(groups, gcp, gri, edges.len())?
     };
-    let mut buf = MemBuffer::try_new(amd::order_scratch::<usize>(groups, edges.len()))
-        .map_err(|_| resources(faer::sparse::FaerError::OutOfMemory))?;
-    let (mut gp, mut gpi) = (vec![0usize; groups], vec![0usize; groups]);
-    amd::order(
-        &mut gp,
-        &mut gpi,
-        gsym.as_ref(),
-        amd::Control::default(),
-        MemStack::new(&mut buf),
-    )
-    .map_err(resources)?;
     // Expand: members of each group, the variable before the constraint.
     let mut members_ptr = vec![0usize; groups + 1];
     for &g in &group {
@@ -451,6 +692,26 @@ fn paired_order(pattern: &KktPattern, problem: &Problem) -> Result<Option<(Vec<u
         perm_inv[node] = pos;
     }
     Ok(Some((perm, perm_inv)))
+}
+
+/// faer's AMD on the compressed pair graph (lower pattern `gcp`, `gri`).
+fn pair_amd(groups: usize, gcp: Vec<usize>, gri: Vec<usize>, nnz: usize) -> Result<(Vec<usize>, Vec<usize>)> {
+    let gsym = faer::sparse::SymbolicSparseColMat::new_checked(groups, groups, gcp, None, gri);
+    let resources = |e: faer::sparse::FaerError| Error::Resources {
+        detail: format!("paired AMD ordering of a graph with {groups} nodes: {e:?}"),
+    };
+    let mut buf = MemBuffer::try_new(amd::order_scratch::<usize>(groups, nnz))
+        .map_err(|_| resources(faer::sparse::FaerError::OutOfMemory))?;
+    let (mut gp, mut gpi) = (vec![0usize; groups], vec![0usize; groups]);
+    amd::order(
+        &mut gp,
+        &mut gpi,
+        gsym.as_ref(),
+        amd::Control::default(),
+        MemStack::new(&mut buf),
+    )
+    .map_err(resources)?;
+    Ok((gp, gpi))
 }
 
 /// Which sign rule produced the current factorization.
@@ -572,7 +833,7 @@ impl SparseLdlt {
             k,
             Side::Lower,
             reg,
-            a.params.par,
+            a.par,
             MemStack::new(&mut self.buf),
             Spec::<LdltParams, f64>::default(),
         );

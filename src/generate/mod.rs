@@ -6,11 +6,13 @@
 //! | `poisson-control` | [`Family::PoissonControl`] | n = 2k², m = k² (N = 3k²) | PDE constraints, badly scaled blocks, large fill |
 //! | `tied-lattice` | [`Family::TiedLattice`] | n = 2(k+1)(k+2), m = 5k + 3 | singular H (floating parts), many tie and multipoint constraints, supports |
 //! | `stokes-mac` | [`Family::StokesMac`] | n = 2k(k−1), m = k² − 1 | saddle-point flow constraints (divergence), zero (2,2) block, many delayed pivots |
+//! | `heat-cube` | [`Family::HeatCube`] | n = 2k³, m = k³ (N = 3k³) | 3D PDE constraints (7-point stencil), large separators: where nested dissection matters |
 //!
 //! Both are invented scenarios for testing linear algebra. They are **not** design or
 //! analysis tools for real plates, structures or heating systems; defer to local codes
 //! and licensed practice for those.
 
+pub mod heat_cube;
 pub mod lattice;
 pub mod poisson;
 pub mod stokes;
@@ -21,6 +23,7 @@ use std::str::FromStr;
 use crate::error::{Error, Result};
 use crate::problem::Problem;
 
+pub use heat_cube::HeatCube;
 pub use lattice::TiedLattice;
 pub use poisson::PoissonControl;
 pub use stokes::StokesMac;
@@ -36,11 +39,13 @@ pub enum Family {
     TiedLattice,
     /// Slow flow in a closed box on a staggered grid ([`StokesMac`]).
     StokesMac,
+    /// Distributed control of a 3D Poisson equation on a k×k×k grid ([`HeatCube`]).
+    HeatCube,
 }
 
 impl Family {
     /// Every family name the command line accepts.
-    pub const NAMES: &'static [&'static str] = &["poisson-control", "tied-lattice", "stokes-mac"];
+    pub const NAMES: &'static [&'static str] = &["poisson-control", "tied-lattice", "stokes-mac", "heat-cube"];
 
     /// The problem of size parameter `k` with default settings.
     ///
@@ -55,6 +60,7 @@ impl Family {
             Family::PoissonControl => PoissonControl::new(k).build(),
             Family::TiedLattice => TiedLattice::new(k).build(),
             Family::StokesMac => StokesMac::new(k).build(),
+            Family::HeatCube => HeatCube::new(k).build(),
         }
     }
 }
@@ -66,6 +72,7 @@ impl FromStr for Family {
             "poisson-control" => Ok(Family::PoissonControl),
             "tied-lattice" => Ok(Family::TiedLattice),
             "stokes-mac" => Ok(Family::StokesMac),
+            "heat-cube" => Ok(Family::HeatCube),
             other => Err(Error::InvalidOption(format!(
                 "unknown problem family '{other}'; known families: {}",
                 Family::NAMES.join(", ")
