@@ -60,7 +60,7 @@
 //! Every [`Solution`] carries the primal residual `‖Ax − b‖∞`, the dual residual
 //! `‖Hx + c + Aᵀy‖∞`, the normwise backward error of the KKT solve on the original
 //! (unscaled) K, the refinement steps taken, the inertia and the verdict. A solve whose
-//! backward error stays above [`solver::DEFAULT_ACCEPT_BACKWARD_ERROR`] after refinement is
+//! backward error stays above [`pipeline::DEFAULT_ACCEPT_BACKWARD_ERROR`] after refinement is
 //! refused ([`Error::Inaccurate`]) instead of being returned.
 //!
 //! ## Performance
@@ -110,6 +110,8 @@ pub mod iterative;
 pub mod kkt;
 pub mod lsq;
 pub mod memory;
+pub mod method;
+pub mod pipeline;
 pub mod problem;
 pub mod report;
 pub mod solution;
@@ -130,7 +132,7 @@ pub use nalgebra_sparse;
 pub struct ReadmeExamples;
 
 pub use backend::dense_lblt::{DenseParams, Pivoting};
-pub use error::{Block, Error, Result};
+pub use error::{Block, Error, ErrorKind, Result};
+pub use pipeline::{solve, Factorization, Method, Options, Plan, Workspace};
 pub use problem::{Matrix, Problem, ProblemBuilder, Triangle};
 pub use solution::{Inertia, MethodUsed, Solution, Timing, Verdict};
-pub use solver::{solve, Factorization, Method, Options, Plan, Workspace};

@@ -35,9 +35,9 @@ use faer::{Accum, Mat, MatMut, Par};
 
 use crate::backend::{auto, KktBackend, SingularFindings};
 use crate::error::Result;
+use crate::pipeline::Options;
 use crate::problem::{Matrix, Problem};
 use crate::solution::{Inertia, MethodUsed};
-use crate::solver::Options;
 
 /// Precision of the Schur factors.
 #[derive(Copy, Clone, Debug, PartialEq, Eq)]
@@ -469,7 +469,7 @@ impl KktBackend for Schur {
         self.fallback = None;
         if let Err(reason) = self.try_factor(problem) {
             let (method, _) = auto::choose_without_schur(problem);
-            let mut fb = auto::make_backend(method, problem, &self.options);
+            let mut fb = auto::make_backend(method, problem, &self.options)?;
             fb.factor(problem)?;
             self.notes.push(format!(
                 "Schur-complement method refused: {reason}; fell back to {method}"
