@@ -204,7 +204,7 @@ pub(crate) fn build(
 ) -> Result<Box<dyn KktBackend>> {
     Ok(match method {
         MethodUsed::DenseLblt => Box::new(DenseLblt::new(problem, options.dense)),
-        MethodUsed::Schur => Box::new(Schur::new(problem, options)),
+        MethodUsed::Schur => Box::new(Schur::new(problem, options.schur)),
         MethodUsed::NullSpace => Box::new(NullSpace::new(problem, options.null_space)),
         MethodUsed::SparseLdlt => {
             let analysis = match sparse {
@@ -344,7 +344,10 @@ pub(crate) fn factor_with_rescue(
     sparse: Option<&Arc<SparseAnalysis>>,
 ) -> Result<Box<dyn KktBackend>> {
     let mut backend = build(method, problem, options, stages, sparse)?;
-    backend.factor(problem)?;
+    if let Err(e) = backend.factor(problem) {
+        let fallback = after_refusal(&*backend, e, problem, options)?;
+        backend = fallback;
+    }
     let affordable = crate::kkt::dim(problem) <= options.singular_rescue_max_dim;
     match backend.inertia() {
         Some(i) if i.zero > 0 && backend.method() != MethodUsed::NullSpace && affordable => {
@@ -361,6 +364,83 @@ pub(crate) fn factor_with_rescue(
             Ok(Box::new(ns))
         }
         _ => Ok(backend),
+    }
+}
+
+/// A backend's factorization failed with `err`. The Schur path refuses with
+/// [`Error::NotApplicable`] (for example `H` not positive definite): then the cheaper of dense
+/// LBLᵀ and null-space takes over, and the refusal is kept in the notes. Every other error
+/// is returned as it is.
+pub(crate) fn after_refusal(
+    refused: &dyn KktBackend,
+    err: Error,
+    problem: &Problem,
+    options: &Options,
+) -> Result<Box<dyn KktBackend>> {
+    let reason = match err {
+        Error::NotApplicable { detail, .. } if refused.method() == MethodUsed::Schur => detail,
+        other => return Err(other),
+    };
+    let (method, _) = choose_without_schur(problem);
+    let mut fallback = build(method, problem, options, None, None)?;
+    fallback.factor(problem)?;
+    let mut notes = refused.notes().to_vec();
+    notes.push(format!(
+        "Schur-complement method refused: {reason}; fell back to {method}"
+    ));
+    notes.extend(fallback.notes().iter().cloned());
+    Ok(Box::new(Noted { inner: fallback, notes }))
+}
+
+/// A backend taken as a fallback, with the notes that say why (the refusal first, then the
+/// fallback's own notes). Everything else is the inner backend's.
+#[derive(Debug)]
+struct Noted {
+    inner: Box<dyn KktBackend>,
+    notes: Vec<String>,
+}
+
+impl KktBackend for Noted {
+    fn method(&self) -> MethodUsed {
+        self.inner.method()
+    }
+    fn dim(&self) -> usize {
+        self.inner.dim()
+    }
+    fn factor(&mut self, problem: &Problem) -> Result<()> {
+        self.inner.factor(problem)
+    }
+    fn inertia(&self) -> Option<crate::solution::Inertia> {
+        self.inner.inertia()
+    }
+    fn regularized_pivots(&self) -> usize {
+        self.inner.regularized_pivots()
+    }
+    fn inertia_certified(&self) -> bool {
+        self.inner.inertia_certified()
+    }
+    fn solve_scratch(&self, nrhs: usize) -> faer::dyn_stack::StackReq {
+        self.inner.solve_scratch(nrhs)
+    }
+    fn solve_in_place(&self, rhs: faer::MatMut<'_, f64>, stack: &mut faer::dyn_stack::MemStack) {
+        self.inner.solve_in_place(rhs, stack)
+    }
+    fn riccati(&self) -> Option<&crate::stagewise::RiccatiBackend> {
+        self.inner.riccati()
+    }
+    fn take_solve_failure(&self) -> Option<Error> {
+        self.inner.take_solve_failure()
+    }
+    fn notes(&self) -> &[String] {
+        &self.notes
+    }
+    fn singular_findings(
+        &self,
+        problem: &Problem,
+        c: &[f64],
+        b: &[f64],
+    ) -> Option<Result<crate::backend::SingularFindings>> {
+        self.inner.singular_findings(problem, c, b)
     }
 }
 

@@ -195,7 +195,11 @@ impl Factorization {
         self.problem.update_values(problem)?;
         let t = Instant::now();
         if self.backend.method() == self.plan.method && self.backend.notes().is_empty() {
-            self.backend.factor(&self.problem)?;
+            if let Err(e) = self.backend.factor(&self.problem) {
+                // A refusal (the Schur path on an indefinite H) goes to the chooser's fallback.
+                let fallback = choose::after_refusal(&*self.backend, e, &self.problem, &self.plan.options)?;
+                self.backend = fallback;
+            }
             if self.backend.inertia().is_some_and(|i| i.zero > 0) && self.backend.method() != MethodUsed::NullSpace {
                 self.backend = self.plan.factor_backend(&self.problem)?;
             }
