@@ -78,6 +78,10 @@
 //!
 //! ## Features
 //!
+//! * `cli` (default): the `tangency` command line and its argument parser (clap). A program
+//!   that embeds the library sets `default-features = false` and does not compile clap.
+//! * `serde` (off by default): `serde::Serialize` on [`Solution`], [`Inertia`],
+//!   [`Verdict`], [`MethodUsed`] (as its command-line word) and [`Timing`].
 //! * `mpi` (off by default): distributed KKT solves on MPI ranks through MUMPS
 //!   (the `distributed` module, `tangency solve --method distributed`).
 //!   Needs OpenMPI, MUMPS built on it, libclang and pkg-config (Debian: `openmpi-bin
