@@ -5,7 +5,7 @@
 use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion};
 use tangency::{Method, Options, Plan};
 
-#[path = "dense_problems.rs"]
+#[path = "common/dense_problems.rs"]
 mod dense_problems;
 
 fn dense(c: &mut Criterion) {

@@ -9,7 +9,7 @@
 
 use std::process::Command;
 
-#[path = "lsq_sparse_design.rs"]
+#[path = "common/lsq_sparse_design.rs"]
 mod lsq_sparse_design;
 
 use criterion::{criterion_group, criterion_main, Criterion};

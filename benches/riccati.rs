@@ -9,7 +9,7 @@
 use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion};
 use tangency::{Method, Options, Plan, Solution};
 
-#[path = "riccati_problem.rs"]
+#[path = "common/riccati_problem.rs"]
 mod riccati_problem;
 use riccati_problem::problem;
 

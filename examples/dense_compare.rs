@@ -9,7 +9,7 @@
 //! certified solve), backward error, refinement steps, inertia, whether f32 factors were
 //! used, and the flops of the method (N³/3 for LBLᵀ, `schur::flops` for Schur).
 
-#[path = "../benches/dense_problems.rs"]
+#[path = "../benches/common/dense_problems.rs"]
 mod dense_problems;
 
 use std::time::Instant;

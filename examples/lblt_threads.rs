@@ -7,7 +7,7 @@
 //!
 //! Usage: `cargo run --release --example lblt_threads -- [N] [REPEATS]`
 
-#[path = "../benches/dense_problems.rs"]
+#[path = "../benches/common/dense_problems.rs"]
 mod dense_problems;
 
 use faer::dyn_stack::{MemBuffer, MemStack};

@@ -7,7 +7,7 @@
 use std::time::Instant;
 use tangency::lsq::{FitMethod, FitOptions};
 
-#[path = "../benches/lsq_sparse_design.rs"]
+#[path = "../benches/common/lsq_sparse_design.rs"]
 mod lsq_sparse_design;
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {

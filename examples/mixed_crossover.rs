@@ -4,7 +4,7 @@
 //!
 //! Run: `cargo run --release --example mixed_crossover`.
 
-#[path = "../benches/dense_problems.rs"]
+#[path = "../benches/common/dense_problems.rs"]
 mod dense_problems;
 use std::time::Instant;
 use tangency::backend::schur::{SchurParams, SchurPrecision};

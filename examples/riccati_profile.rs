@@ -10,7 +10,7 @@
 //!
 //! Without valgrind it prints the mean time per round (wall clock, noisy).
 
-#[path = "../benches/riccati_problem.rs"]
+#[path = "../benches/common/riccati_problem.rs"]
 mod riccati_problem;
 
 use riccati_problem::problem;

@@ -9,6 +9,10 @@
 //!   has no trustworthy solution (singular, infeasible, unbounded). The variant carries the
 //!   diagnosis. Recover by changing the model (drop or fix constraints, regularize H).
 //!
+//! [`Error::kind`] sorts every variant into an [`ErrorKind`] (input, usage, not applicable,
+//! numerical, iterative, resources, I/O, distributed); the two families above are unions of
+//! kinds.
+//!
 //! Library code never panics on user data: every failure is one of these variants.
 
 use std::fmt;
@@ -37,6 +41,46 @@ impl fmt::Display for Block {
             Block::C => "c",
             Block::B => "b",
         })
+    }
+}
+
+/// The family of an [`Error`], from [`Error::kind`]: what went wrong, independently of
+/// the variant's details.
+#[derive(Copy, Clone, Debug, PartialEq, Eq, Hash)]
+#[non_exhaustive]
+pub enum ErrorKind {
+    /// Malformed data (sizes, NaN/Inf, asymmetry, positions, file content): fix the data.
+    Input,
+    /// An option that does not exist or does not apply, or a call with another structure
+    /// than the one analyzed: fix the call.
+    Usage,
+    /// Well-formed data that the chosen method cannot handle ([`Error::NotApplicable`]):
+    /// choose another method.
+    NotApplicable,
+    /// Well-formed data without a trustworthy solution (singular, infeasible, unbounded,
+    /// not certified, overflow, not convex): change the model.
+    Numerical,
+    /// An iterative method stopped at its limit before its tolerance.
+    Iterative,
+    /// Not enough memory (or index range) for the computation.
+    Resources,
+    /// A file could not be read or written.
+    Io,
+    /// The distributed engine (MUMPS, MPI) failed for a reason other than the above.
+    Distributed,
+}
+
+impl ErrorKind {
+    /// One or two words for people (the command line's stderr label).
+    pub fn describe(self) -> &'static str {
+        match self {
+            ErrorKind::Input | ErrorKind::Usage | ErrorKind::NotApplicable => "invalid input",
+            ErrorKind::Numerical => "no solution",
+            ErrorKind::Iterative => "not converged",
+            ErrorKind::Resources => "not enough resources",
+            ErrorKind::Io => "file error",
+            ErrorKind::Distributed => "distributed engine error",
+        }
     }
 }
 
@@ -156,6 +200,18 @@ pub enum Error {
     /// A method option that does not exist or does not apply.
     #[error("{0}")]
     InvalidOption(String),
+    /// The data are well formed but lack a property the chosen method needs (for example a
+    /// preconditioner block that is not positive definite): another method may still solve
+    /// the problem. Not an option error and not a diagnosis of the problem itself. CLI:
+    /// status `invalid_input`, exit code 2 (unchanged from when these were
+    /// [`Error::InvalidOption`]).
+    #[error("{detail}")]
+    NotApplicable {
+        /// The method (or component) whose requirement failed.
+        method: &'static str,
+        /// Which property is missing, with the figures.
+        detail: String,
+    },
     /// A file could not be read or written.
     #[error("{path}: {source}")]
     Io {
@@ -258,10 +314,10 @@ pub enum Error {
         /// What is wrong.
         detail: String,
     },
-    /// A general problem does not have the stage structure that `--method riccati --stages`
+    /// A general problem does not have the stage structure that [`Options::stages`](crate::Options::stages)
     /// declares. Recover by reordering the variables and rows (see [`crate::stagewise`]) or by
     /// choosing another method.
-    #[error("not stage-structured for --stages {dims}: entry {block}[{row},{col}] = {value:e} (0-based) {detail}")]
+    #[error("not stage-structured for the stage dimensions {dims}: entry {block}[{row},{col}] = {value:e} (0-based) {detail}")]
     NotStageStructured {
         /// The declared dimensions.
         dims: crate::stagewise::StageDims,
@@ -456,42 +512,71 @@ fn fit_position(row: Option<usize>, col: Option<usize>) -> String {
 }
 
 impl Error {
-    /// True for errors caused by malformed input (CLI exit code 2).
+    /// The family of this error (see [`ErrorKind`]). The `match` names every variant, so a
+    /// new one must be classified here.
+    pub fn kind(&self) -> ErrorKind {
+        #[cfg(feature = "mpi")]
+        if let Some(code) = self.distributed_exit_code() {
+            return match code {
+                3 => ErrorKind::Numerical,
+                4 => ErrorKind::Iterative,
+                _ => ErrorKind::Distributed,
+            };
+        }
+        match self {
+            Error::DimensionMismatch { .. }
+            | Error::NonFinite { .. }
+            | Error::DuplicateSumOverflow { .. }
+            | Error::NotSymmetric { .. }
+            | Error::WrongTriangle { .. }
+            | Error::IndexOutOfRange { .. }
+            | Error::WrongLength { .. }
+            | Error::Parse { .. }
+            | Error::Stage { .. }
+            | Error::NotStageStructured { .. }
+            | Error::InvalidSensitivityInput { .. }
+            | Error::FitInput { .. }
+            | Error::InequalityInput { .. } => ErrorKind::Input,
+            Error::InFile { source, .. } => source.kind(),
+            Error::StructureChanged { .. } | Error::InvalidOption(_) => ErrorKind::Usage,
+            Error::NotApplicable { .. } => ErrorKind::NotApplicable,
+            Error::Io { .. } => ErrorKind::Io,
+            Error::Resources { .. } => ErrorKind::Resources,
+            Error::Singular { .. }
+            | Error::Inaccurate { .. }
+            | Error::Uncertified { .. }
+            | Error::Infeasible { .. }
+            | Error::Unbounded { .. }
+            | Error::Overflow { .. }
+            | Error::FitContradictory { .. }
+            | Error::FitNonUnique { .. }
+            | Error::InfeasibleInequalities { .. }
+            | Error::Nonconvex { .. } => ErrorKind::Numerical,
+            Error::NotConverged { .. } | Error::InteriorPointNotConverged { .. } => ErrorKind::Iterative,
+            #[cfg(feature = "mpi")]
+            Error::Mumps(_) | Error::OnOtherRank { .. } => ErrorKind::Distributed,
+        }
+    }
+
+    /// True for errors caused by malformed input, options or a method that does not apply
+    /// ([`ErrorKind::Input`], [`ErrorKind::Usage`], [`ErrorKind::NotApplicable`]). I/O and
+    /// resource errors are not invalid input (the command line still exits with code 2 and
+    /// status `invalid_input` for them, as its contract has always said).
     pub fn is_invalid_input(&self) -> bool {
-        !self.is_no_solution() && !self.is_not_converged()
+        matches!(
+            self.kind(),
+            ErrorKind::Input | ErrorKind::Usage | ErrorKind::NotApplicable
+        )
     }
 
     /// True when an iterative method hit its iteration limit (CLI exit code 4).
     pub fn is_not_converged(&self) -> bool {
-        #[cfg(feature = "mpi")]
-        if let Some(code) = self.distributed_exit_code() {
-            return code == 4;
-        }
-        matches!(
-            self,
-            Error::NotConverged { .. } | Error::InteriorPointNotConverged { .. }
-        )
+        self.kind() == ErrorKind::Iterative
     }
 
     /// True for well-formed problems without a trustworthy solution (CLI exit code 3).
     pub fn is_no_solution(&self) -> bool {
-        #[cfg(feature = "mpi")]
-        if let Some(code) = self.distributed_exit_code() {
-            return code == 3;
-        }
-        matches!(
-            self,
-            Error::Singular { .. }
-                | Error::Inaccurate { .. }
-                | Error::Uncertified { .. }
-                | Error::Infeasible { .. }
-                | Error::Unbounded { .. }
-                | Error::Overflow { .. }
-                | Error::FitContradictory { .. }
-                | Error::FitNonUnique { .. }
-                | Error::InfeasibleInequalities { .. }
-                | Error::Nonconvex { .. }
-        )
+        self.kind() == ErrorKind::Numerical
     }
 
     /// Short machine-readable status word used by the command line's JSON.

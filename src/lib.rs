@@ -60,7 +60,7 @@
 //! Every [`Solution`] carries the primal residual `‖Ax − b‖∞`, the dual residual
 //! `‖Hx + c + Aᵀy‖∞`, the normwise backward error of the KKT solve on the original
 //! (unscaled) K, the refinement steps taken, the inertia and the verdict. A solve whose
-//! backward error stays above [`solver::DEFAULT_ACCEPT_BACKWARD_ERROR`] after refinement is
+//! backward error stays above [`pipeline::DEFAULT_ACCEPT_BACKWARD_ERROR`] after refinement is
 //! refused ([`Error::Inaccurate`]) instead of being returned.
 //!
 //! ## Performance
@@ -78,6 +78,10 @@
 //!
 //! ## Features
 //!
+//! * `cli` (default): the `tangency` command line and its argument parser (clap). A program
+//!   that embeds the library sets `default-features = false` and does not compile clap.
+//! * `serde` (off by default): `serde::Serialize` on [`Solution`], [`Inertia`],
+//!   [`Verdict`], [`MethodUsed`] (as its command-line word) and [`Timing`].
 //! * `mpi` (off by default): distributed KKT solves on MPI ranks through MUMPS
 //!   (the `distributed` module, `tangency solve --method distributed`).
 //!   Needs OpenMPI, MUMPS built on it, libclang and pkg-config (Debian: `openmpi-bin
@@ -110,6 +114,8 @@ pub mod iterative;
 pub mod kkt;
 pub mod lsq;
 pub mod memory;
+pub mod method;
+pub mod pipeline;
 pub mod problem;
 pub mod report;
 pub mod solution;
@@ -130,7 +136,7 @@ pub use nalgebra_sparse;
 pub struct ReadmeExamples;
 
 pub use backend::dense_lblt::{DenseParams, Pivoting};
-pub use error::{Block, Error, Result};
+pub use error::{Block, Error, ErrorKind, Result};
+pub use pipeline::{solve, Factorization, Method, Options, Plan, Workspace};
 pub use problem::{Matrix, Problem, ProblemBuilder, Triangle};
 pub use solution::{Inertia, MethodUsed, Solution, Timing, Verdict};
-pub use solver::{solve, Factorization, Method, Options, Plan, Workspace};

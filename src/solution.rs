@@ -4,6 +4,7 @@ use std::fmt;
 
 /// Eigenvalue sign counts of the KKT matrix (Sylvester's law of inertia).
 #[derive(Copy, Clone, Debug, PartialEq, Eq, Default)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize))]
 pub struct Inertia {
     /// Positive eigenvalues.
     pub positive: usize,
@@ -32,6 +33,7 @@ impl fmt::Display for Inertia {
 
 /// What kind of stationary point was computed.
 #[derive(Copy, Clone, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize), serde(rename_all = "snake_case"))]
 #[non_exhaustive]
 pub enum Verdict {
     /// The unique global minimizer: inertia of K is (n, m, 0), i.e. `A` has full row rank
@@ -75,53 +77,7 @@ impl fmt::Display for Verdict {
     }
 }
 
-/// Which backend produced a factorization.
-#[derive(Copy, Clone, Debug, PartialEq, Eq)]
-#[non_exhaustive]
-pub enum MethodUsed {
-    /// Dense symmetric-indefinite LBLᵀ (Bunch–Kaufman family).
-    DenseLblt,
-    /// Riccati recursion over the stages of a stage-wise (optimal control) problem.
-    Riccati,
-    /// Range-space method: Cholesky of `H`, then of the Schur complement `A H⁻¹ Aᵀ`.
-    Schur,
-    /// Null-space method: rank-revealing QR of `Aᵀ`, reduced Hessian `ZᵀHZ`.
-    NullSpace,
-    /// Sparse LDLᵀ with a fill-reducing ordering and regularized pivots.
-    SparseLdlt,
-    /// Preconditioned MINRES (iterative; inertia not observed), see [`crate::iterative`].
-    Minres,
-    /// Projected conjugate gradients with a constraint preconditioner (iterative; inertia
-    /// not observed), see [`crate::iterative::pcg()`].
-    Pcg,
-    /// MUMPS's distributed symmetric-indefinite factorization on MPI ranks, see
-    /// [`crate::distributed`] (feature `mpi`).
-    #[cfg(feature = "mpi")]
-    Distributed,
-}
-
-impl MethodUsed {
-    /// The word used by the command line.
-    pub fn as_str(self) -> &'static str {
-        match self {
-            MethodUsed::DenseLblt => "dense",
-            MethodUsed::Riccati => "riccati",
-            MethodUsed::Schur => "schur",
-            MethodUsed::NullSpace => "nullspace",
-            MethodUsed::SparseLdlt => "sparse",
-            MethodUsed::Minres => "minres",
-            MethodUsed::Pcg => "pcg",
-            #[cfg(feature = "mpi")]
-            MethodUsed::Distributed => "distributed",
-        }
-    }
-}
-
-impl fmt::Display for MethodUsed {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.write_str(self.as_str())
-    }
-}
+pub use crate::method::MethodUsed;
 
 impl Solution {
     /// A zeroed solution with the right sizes, to be filled by
@@ -148,6 +104,7 @@ impl Solution {
 
 /// Wall-clock seconds spent in each phase.
 #[derive(Copy, Clone, Debug, Default, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize))]
 pub struct Timing {
     /// Symbolic analysis (structure, ordering, method choice).
     pub analyze_s: f64,
@@ -162,6 +119,7 @@ pub struct Timing {
 /// Sign convention: `Hx + c + Aᵀy = 0` and `Ax = b`; raising `bᵢ` by one unit changes the
 /// optimal objective by `−yᵢ` to first order.
 #[derive(Clone, Debug)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize))]
 pub struct Solution {
     /// Primal point (length n).
     pub x: Vec<f64>,

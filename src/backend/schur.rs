@@ -22,9 +22,11 @@
 //! n · ε · max_i H_ii`, i.e. `H` not numerically positive definite; likewise for `S`), or
 //! if a probe solve on the original K (a fixed right-hand side `K·z₀`, refined up to three
 //! times) leaves a backward error above [`SchurParams::probe_backward_error`] (an
-//! ill-conditioned `H` makes `S` inaccurate), the backend hands over to the method the
-//! cost model of [`crate::backend::auto`] picks among dense LBLᵀ and null-space, and says
-//! so in its notes; [`method`](KktBackend::method) then reports the method actually used.
+//! ill-conditioned `H` makes `S` inaccurate), the backend refuses with
+//! [`Error::NotApplicable`](crate::Error::NotApplicable) and the reason; the chooser
+//! ([`crate::pipeline::choose`]) then takes the method its cost model picks among dense
+//! LBLᵀ and null-space and says so in the notes, and the solution's `method` reports the
+//! method actually used. The backend holds no other backend.
 
 use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
 use faer::linalg::cholesky::llt::factor::{self as llt, LltRegularization};
@@ -33,11 +35,10 @@ use faer::linalg::triangular_solve;
 use faer::mat::AsMatMut;
 use faer::{Accum, Mat, MatMut, Par};
 
-use crate::backend::{auto, KktBackend, SingularFindings};
+use crate::backend::KktBackend;
 use crate::error::Result;
 use crate::problem::{Matrix, Problem};
 use crate::solution::{Inertia, MethodUsed};
-use crate::solver::Options;
 
 /// Precision of the Schur factors.
 #[derive(Copy, Clone, Debug, PartialEq, Eq)]
@@ -340,42 +341,33 @@ fn cholesky<T: Real>(
 #[derive(Debug)]
 pub struct Schur {
     params: SchurParams,
-    options: Options,
     n: usize,
     m: usize,
     double: Factors<f64>,
     single: Factors<f32>,
     // Whether the factors in use are the `f32` ones.
     mixed: bool,
-    fallback: Option<Box<dyn KktBackend>>,
     notes: Vec<String>,
 }
 
 impl Schur {
-    /// Allocates for a problem of this size; `options` configures the fallback backends.
-    pub fn new(problem: &Problem, options: &Options) -> Self {
+    /// Allocates for a problem of this size.
+    pub fn new(problem: &Problem, params: SchurParams) -> Self {
         let (n, m) = (problem.n(), problem.m());
         Schur {
-            params: options.schur,
-            options: *options,
+            params,
             n,
             m,
             double: Factors::empty(),
             single: Factors::empty(),
             mixed: false,
-            fallback: None,
             notes: Vec::new(),
         }
     }
 
-    /// Whether the last factorization fell back to another method.
-    pub fn fell_back(&self) -> bool {
-        self.fallback.is_some()
-    }
-
     /// Whether the factors in use are single precision (see [`SchurPrecision::Mixed`]).
     pub fn mixed_precision(&self) -> bool {
-        self.fallback.is_none() && self.mixed
+        self.mixed
     }
 
     fn try_factor(&mut self, problem: &Problem) -> std::result::Result<(), String> {
@@ -454,65 +446,43 @@ impl Schur {
 
 impl KktBackend for Schur {
     fn method(&self) -> MethodUsed {
-        match &self.fallback {
-            Some(f) => f.method(),
-            None => MethodUsed::Schur,
-        }
+        MethodUsed::Schur
     }
 
     fn dim(&self) -> usize {
         self.n + self.m
     }
 
+    /// Factors, or refuses with [`Error::NotApplicable`](crate::Error::NotApplicable) and the
+    /// reason (`H` not positive definite, `m > n`, a failed probe): the chooser
+    /// ([`crate::pipeline::choose`]) then takes the cheaper of dense LBLᵀ and null-space.
     fn factor(&mut self, problem: &Problem) -> Result<()> {
         self.notes.clear();
-        self.fallback = None;
         if let Err(reason) = self.try_factor(problem) {
-            let (method, _) = auto::choose_without_schur(problem);
-            let mut fb = auto::make_backend(method, problem, &self.options);
-            fb.factor(problem)?;
-            self.notes.push(format!(
-                "Schur-complement method refused: {reason}; fell back to {method}"
-            ));
-            self.notes.extend(fb.notes().iter().cloned());
             // Release the Schur storage while the fallback is in use.
             self.double = Factors::empty();
             self.single = Factors::empty();
-            self.fallback = Some(fb);
+            return Err(crate::error::Error::NotApplicable {
+                method: "schur",
+                detail: reason,
+            });
         }
         Ok(())
     }
 
     fn inertia(&self) -> Option<Inertia> {
-        match &self.fallback {
-            Some(f) => f.inertia(),
-            None => Some(Inertia::new(self.n, self.m, 0)),
-        }
-    }
-
-    fn regularized_pivots(&self) -> usize {
-        self.fallback.as_ref().map_or(0, |f| f.regularized_pivots())
+        Some(Inertia::new(self.n, self.m, 0))
     }
 
     fn solve_scratch(&self, nrhs: usize) -> StackReq {
-        match &self.fallback {
-            Some(f) => f.solve_scratch(nrhs),
-            None => solve_scratch(self.n, self.m, nrhs),
-        }
+        solve_scratch(self.n, self.m, nrhs)
     }
 
     fn solve_in_place(&self, rhs: MatMut<'_, f64>, stack: &mut MemStack) {
-        match &self.fallback {
-            Some(f) => f.solve_in_place(rhs, stack),
-            None => self.solve_own(rhs, stack),
-        }
+        self.solve_own(rhs, stack)
     }
 
     fn notes(&self) -> &[String] {
         &self.notes
-    }
-
-    fn singular_findings(&self, problem: &Problem, c: &[f64], b: &[f64]) -> Option<Result<SingularFindings>> {
-        self.fallback.as_ref().and_then(|f| f.singular_findings(problem, c, b))
     }
 }

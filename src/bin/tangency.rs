@@ -163,6 +163,25 @@ fn write_pair(out: &std::path::Path, first: (&str, &[f64]), second: (&str, &[f64
     io::write_vector(out.join(second.0), second.1)
 }
 
+/// Adds the command-line spelling to library messages that name a setting by its meaning
+/// (the library speaks of "the tolerance" and "the sparse method"; here they are `--tol`
+/// and `--method sparse`).
+fn cli_words(err: Error) -> Error {
+    match err {
+        Error::InvalidOption(msg) if msg.starts_with("the tolerance must lie") => {
+            Error::InvalidOption(format!("--tol: {msg}"))
+        }
+        Error::Resources { detail }
+            if detail.ends_with("the sparse method (or auto) handles a problem of this size") =>
+        {
+            Error::Resources {
+                detail: format!("{detail} (--method sparse or auto)"),
+            }
+        }
+        other => other,
+    }
+}
+
 /// The one-line human message on stderr for an outcome without a result.
 fn print_error(err: &Error) {
     let kind = if err.is_no_solution() {
@@ -491,6 +510,7 @@ fn solve(
 ) -> ExitCode {
     let json = shown.json;
     let fail = |err: Error, sizes: Option<(usize, usize)>, used: Option<&str>, inertia, kappa: Option<f64>| {
+        let err = cli_words(err);
         if json {
             let mut o = error_json(&err, sizes, used, inertia);
             o.set("condition_estimate", kappa.filter(|k| k.is_finite()));
@@ -673,6 +693,7 @@ fn condition_line(kappa: f64, solves: usize, scaled_kappa: f64, bound: f64) -> S
 /// Reports a failed iterative solve (error JSON with the iterations and residual tail of a
 /// non-convergence, or the message) and returns its exit code.
 fn fail_iterative(err: Error, sizes: Option<(usize, usize)>, method: &str, json: bool) -> ExitCode {
+    let err = cli_words(err);
     if json {
         println!("{}", error_json(&err, sizes, Some(method), None));
     } else {

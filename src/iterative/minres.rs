@@ -154,8 +154,8 @@ fn spd_ok(v: f64) -> bool {
 
 /// Runs preconditioned MINRES on `K z = rhs` from `z0` (zero if `None`).
 ///
-/// Errors: wrong lengths, or a preconditioner that is not positive definite (a negative or
-/// non-finite `rᵀP⁻¹r`), as [`Error::InvalidOption`]. Not converging is **not** an error
+/// Errors: wrong lengths ([`Error::InvalidOption`]), or a preconditioner that is not
+/// positive definite (a negative or non-finite `rᵀP⁻¹r`, [`Error::NotApplicable`]). Not converging is **not** an error
 /// here: check [`MinresOutcome::converged`].
 pub fn minres(
     op: &dyn KktOperator,
@@ -227,9 +227,12 @@ pub fn minres_faer<O: LinOp<f64> + ?Sized, P: Precond<f64> + ?Sized>(
         )));
     }
     let not_spd = |what: &str, v: f64| {
-        Err(Error::InvalidOption(format!(
-            "MINRES needs a symmetric positive definite preconditioner, but rᵀP⁻¹r = {v:e} for the {what}"
-        )))
+        Err(Error::NotApplicable {
+            method: "minres",
+            detail: format!(
+                "MINRES needs a symmetric positive definite preconditioner, but rᵀP⁻¹r = {v:e} for the {what}"
+            ),
+        })
     };
     let mut y = vec![0.0; dim];
     apply_p(rhs, &mut y, &mut buf);

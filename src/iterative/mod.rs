@@ -95,7 +95,7 @@ pub struct IterativeSolution {
 pub fn solve(problem: &Problem, options: &IterativeOptions) -> Result<IterativeSolution> {
     if !(options.tol > 0.0 && options.tol < 1.0) {
         return Err(Error::InvalidOption(format!(
-            "--tol must lie in (0, 1), got {}",
+            "the tolerance must lie in (0, 1), got {}",
             options.tol
         )));
     }

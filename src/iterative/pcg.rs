@@ -141,7 +141,7 @@ impl Projector {
         if let Some(i) = f.inertia().filter(|i| i.zero > 0) {
             return Err(Error::InvalidOption(format!(
                 "projected CG needs A of full row rank: the constraint preconditioner [D Aᵀ; A 0] is singular \
-                 (inertia {i}); use --method sparse or minres"
+                 (inertia {i}); use the sparse or the MINRES method"
             )));
         }
         let ws = f.workspace();
@@ -172,7 +172,7 @@ impl Projector {
 pub fn pcg(problem: &Problem, options: &PcgOptions) -> Result<PcgSolution> {
     if !(options.tol > 0.0 && options.tol < 1.0) {
         return Err(Error::InvalidOption(format!(
-            "--tol must lie in (0, 1), got {}",
+            "the tolerance must lie in (0, 1), got {}",
             options.tol
         )));
     }

@@ -22,8 +22,8 @@
 //!   for that semidefiniteness; it is not checked further). On Poisson control (`A₁` the
 //!   5-point Laplacian, `A₂ = −h²I`, `D₁`, `D₂` multiples of `I`) `M` is a symmetric
 //!   positive definite 5-point matrix instead of the 13-point `A D⁻¹ Aᵀ`, and the bound
-//!   holds. Not applicable (typed [`Error::InvalidOption`]) when `n ≠ 2m` or `M` is
-//!   singular.
+//!   holds. Not applicable: [`Error::InvalidOption`] when `n ≠ 2m`,
+//!   [`Error::NotApplicable`] when `M` is singular.
 //!
 //! Every block must be symmetric positive definite (MINRES needs an SPD preconditioner).
 //! Users plug their own blocks in through [`BlockSolve`].
@@ -74,9 +74,10 @@ impl DiagonalBlock {
     /// From the diagonal `d` (every entry must be positive and finite).
     pub fn new(d: &[f64]) -> Result<Self> {
         if let Some((i, v)) = d.iter().enumerate().find(|(_, v)| !(v.is_finite() && **v > 0.0)) {
-            return Err(Error::InvalidOption(format!(
-                "preconditioner diagonal entry {i} is {v:e}: it must be positive and finite"
-            )));
+            return Err(Error::NotApplicable {
+                method: "minres",
+                detail: format!("preconditioner diagonal entry {i} is {v:e}: it must be positive and finite"),
+            });
         }
         Ok(DiagonalBlock {
             inv: d.iter().map(|v| 1.0 / v).collect(),
@@ -118,9 +119,12 @@ impl CholeskyBlock {
             detail: format!("building {what}: {e:?}"),
         })?;
         let llt = mat.sp_cholesky(Side::Lower).map_err(|e| {
-            Error::InvalidOption(format!(
-                "the preconditioner block {what} is not positive definite ({e:?}); use a Jacobi/diagonal block or a shift"
-            ))
+            Error::NotApplicable {
+                method: "minres",
+                detail: format!(
+                    "the preconditioner block {what} is not positive definite ({e:?}); use a Jacobi/diagonal block or a shift"
+                ),
+            }
         })?;
         Ok(CholeskyBlock { dim, llt })
     }
@@ -407,10 +411,11 @@ impl MatchingBlock {
 }
 
 fn lu(mat: &SparseColMat<usize, f64>) -> Result<faer::sparse::linalg::solvers::Lu<usize, f64>> {
-    mat.sp_lu().map_err(|e| {
-        Error::InvalidOption(format!(
+    mat.sp_lu().map_err(|e| Error::NotApplicable {
+        method: "minres",
+        detail: format!(
             "the matching Schur block M = B1 ± B2 is singular ({e:?}); use the cholesky or diagonal Schur block"
-        ))
+        ),
     })
 }
 

@@ -268,7 +268,7 @@ pub fn read_fit(dir: impl AsRef<Path>, input: &FitInput) -> Result<LsqProblem> {
     }
     if input.response.is_some() || input.weights.is_some() || input.intercept {
         return Err(Error::InvalidOption(
-            "--response, --weights and --intercept apply to data.csv only; this directory has none".into(),
+            "the response, weights and intercept settings apply to data.csv only; this directory has none".into(),
         ));
     }
     let problem = super::io::read_fit_dir(dir)?;

@@ -215,10 +215,7 @@ pub(crate) struct RiccatiChoice {
 /// inputs in a stage).
 pub(crate) fn analyze(problem: &crate::Problem, dims: Option<StageDims>) -> Result<RiccatiChoice> {
     let dims = dims.ok_or_else(|| {
-        Error::InvalidOption(
-            "method 'riccati' needs the stage dimensions: set Options::stages (command line: --stages NX,NU,N)"
-                .to_string(),
-        )
+        Error::InvalidOption("method 'riccati' needs the stage dimensions: set Options::stages".to_string())
     })?;
     let st = structure::detect(problem, dims)?;
     match st.unsupported_reason(problem) {

@@ -213,7 +213,7 @@ pub fn detect(problem: &Problem, dims: StageDims) -> Result<StageStructure> {
     let (n, m) = (problem.n(), problem.m());
     if n != dims.n_vars() || m < dims.n_dynamics_rows() {
         return Err(Error::InvalidOption(format!(
-            "--stages {dims} implies n = (N+1)·nx + N·nu = {} variables and at least (N+1)·nx = {} constraint rows, \
+            "the stage layout {dims} (nx, nu, N) implies n = (N+1)·nx + N·nu = {} variables and at least (N+1)·nx = {} constraint rows, \
              but the problem has n = {n}, m = {m}",
             dims.n_vars(),
             dims.n_dynamics_rows()
