@@ -191,7 +191,7 @@ fn only_rank_zero_prints_and_a_rank_zero_failure_ends_every_rank() {
     let o = mpirun(3, &["solve", dir.to_str().unwrap(), "--method", "distributed"]);
     assert!(o.status.success());
     let text = String::from_utf8_lossy(&o.stdout);
-    assert_eq!(text.matches("── tangency").count(), 1, "{text}");
+    assert_eq!(text.matches("tangency solve ▸").count(), 1, "{text}");
     assert!(text.contains("3 MPI rank(s)"), "{text}");
     // A missing directory: invalid input on rank 0 ends all three ranks with exit 2 (mpirun
     // returns the first non-zero code) and one error JSON.
