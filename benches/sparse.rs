@@ -1,5 +1,5 @@
 //! Sparse KKT benchmark on the Poisson-control family, side by side with SuperLU
-//! (scipy `splu` through `../shared/tools/reference_solve.py --method sparse`) on the same
+//! (scipy `splu` through `scripts/reference_solve.py --method sparse`) on the same
 //! problem directories, plus the dense-versus-sparse crossover behind `Method::Auto`.
 //!
 //! Run: `cargo bench --bench sparse` (sizes from `TANGENCY_BENCH_K`, default
@@ -37,14 +37,12 @@ fn peak_rss_mib() -> f64 {
         .map_or(f64::NAN, |kib| kib / 1024.0)
 }
 
+/// The reference solver (LAPACK, SuperLU, MKL PARDISO through scipy/pypardiso), vendored in
+/// `scripts/` from the project's shared tools.
+const REFERENCE_SOLVE: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/scripts/reference_solve.py");
+
 fn superlu_seconds(dir: &Path) -> Option<f64> {
-    // shared/ beside the checkout (CI), or two levels up (a worktree under wt/).
-    let script = [
-        concat!(env!("CARGO_MANIFEST_DIR"), "/../shared/tools/reference_solve.py"),
-        concat!(env!("CARGO_MANIFEST_DIR"), "/../../shared/tools/reference_solve.py"),
-    ]
-    .into_iter()
-    .find(|p| Path::new(p).exists())?;
+    let script = REFERENCE_SOLVE;
     let out = Command::new("python3")
         .args([script, dir.to_str()?, "--method", "sparse", "--repeat", "3"])
         .output()
@@ -184,12 +182,7 @@ fn crossover(c: &mut Criterion) {
 /// PARDISO's phase times (MKL_NUM_THREADS = `threads`) from `reference_solve.py --method
 /// pardiso`: (factor, refactor, analyze+factor+solve).
 fn pardiso_seconds(dir: &Path, threads: usize) -> Option<(f64, f64, f64)> {
-    let script = [
-        concat!(env!("CARGO_MANIFEST_DIR"), "/../shared/tools/reference_solve.py"),
-        concat!(env!("CARGO_MANIFEST_DIR"), "/../../shared/tools/reference_solve.py"),
-    ]
-    .into_iter()
-    .find(|p| Path::new(p).exists())?;
+    let script = REFERENCE_SOLVE;
     let out = Command::new("python3")
         .args([script, dir.to_str()?, "--method", "pardiso", "--repeat", "3"])
         .env("MKL_NUM_THREADS", threads.to_string())

@@ -1,7 +1,7 @@
 //! Structure-aware backends against dense LBLᵀ and LAPACK.
 //!
 //! Run: `cargo bench --bench structure` (needs python3 with numpy/scipy for the LAPACK
-//! reference, `../shared/tools/reference_solve.py`; skipped with a message if missing).
+//! reference, `scripts/reference_solve.py`; skipped with a message if missing).
 //!
 //! 1. `convex_3000x1000`: convex dense KKT, n = 3000, m = 1000, Schur complement vs our dense
 //!    LBLᵀ; LAPACK dsysv (scipy `solve(assume_a="sym")`) on the same matrix in the same run,
@@ -130,21 +130,17 @@ fn read_array(path: &Path) -> Option<Vec<f64>> {
     lines.map(|l| l.trim().parse().ok()).collect()
 }
 
-/// LAPACK dsysv through the shared reference script: (best seconds, backward error of its
+/// LAPACK dsysv through the reference script: (best seconds, backward error of its
 /// answer on our side), or None when python/scipy is unavailable.
 fn lapack_reference(p: &Problem) -> Option<(f64, f64)> {
     let dir = tempfile::tempdir().ok()?;
     let pdir = dir.path().join("problem");
     let out = dir.path().join("out");
     tangency::io::write_problem_dir(p, &pdir).ok()?;
-    let script = concat!(env!("CARGO_MANIFEST_DIR"), "/../shared/tools/reference_solve.py");
-    let script = if Path::new(script).exists() {
-        script.to_string()
-    } else {
-        concat!(env!("CARGO_MANIFEST_DIR"), "/../../shared/tools/reference_solve.py").to_string()
-    };
+    // Vendored in scripts/ from the project's shared tools.
+    let script = concat!(env!("CARGO_MANIFEST_DIR"), "/scripts/reference_solve.py");
     let o = Command::new("python3")
-        .arg(&script)
+        .arg(script)
         .arg(&pdir)
         .args(["--method", "dense", "--repeat", "3", "--out"])
         .arg(&out)

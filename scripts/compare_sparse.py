@@ -6,7 +6,7 @@ For each case: writes the problem directory with `tangency generate` (once), the
   * tangency: `target/release/examples/sparse_threads DIR REPEATS THREADS` (medians of
     in-process runs: analysis, numeric factorization, refactorization, refined and
     certified solve, whole `tangency::solve`);
-  * PARDISO: `../shared/tools/reference_solve.py DIR --method pardiso --repeat REPEATS`
+  * PARDISO: `scripts/reference_solve.py DIR --method pardiso --repeat REPEATS`
     with MKL_NUM_THREADS = OMP_NUM_THREADS = THREADS (its own phases, best of REPEATS);
 and prints a Markdown table with the ratios tangency / PARDISO (< 1: tangency faster) and
 the `uptime` load average taken just before each measurement. The machine may be shared:
@@ -29,11 +29,8 @@ def load():
 
 
 def reference_script():
-    for p in (os.path.join(ROOT, "..", "shared", "tools", "reference_solve.py"),
-              os.path.join(ROOT, "..", "..", "shared", "tools", "reference_solve.py")):
-        if os.path.exists(p):
-            return p
-    sys.exit("reference_solve.py not found beside the checkout")
+    # Vendored from the project's shared tools.
+    return os.path.join(ROOT, "scripts", "reference_solve.py")
 
 
 def ours(directory, repeat, threads):

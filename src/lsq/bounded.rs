@@ -114,9 +114,8 @@ fn normal_equations(pr: &LsqProblem) -> (Mat<f64>, Vec<f64>) {
 
 /// Step 1: the interior-point guess of the active restrictions (indices into
 /// `pr.inequalities`).
-fn guess_active(pr: &LsqProblem) -> Result<Vec<usize>> {
+fn guess_active(pr: &LsqProblem, h: &Mat<f64>, fg: &[f64]) -> Result<Vec<usize>> {
     let n = pr.n();
-    let (h, fg) = normal_equations(pr);
     // Jacobi scaling β = Dβ̃: H̃ = DHD, c̃ = Dc, C̃ = CD, ã = Da.
     let dscale: Vec<f64> = (0..n)
         .map(|j| if h[(j, j)] > 0.0 { 1.0 / h[(j, j)].sqrt() } else { 1.0 })
@@ -235,9 +234,9 @@ pub(crate) fn fit(pr: &LsqProblem, options: &FitOptions) -> Result<Fit> {
              search forms the dense n×n matrix FᵀWF); this fit has {n}"
         )));
     }
-    let (_, fg) = normal_equations(pr);
+    let (h, fg) = normal_equations(pr);
     let fg_scale = fg.iter().fold(0.0f64, |a, v| a.max(v.abs()));
-    let mut active = guess_active(pr)?;
+    let mut active = guess_active(pr, &h, &fg)?;
     active.sort_unstable();
     let point = FitOptions {
         inference: false,

@@ -311,6 +311,13 @@ pub fn parse(text: &str, names: &[String]) -> Result<Vec<Restriction>> {
             let mut constant = 0.0;
             side(lhs, names, line, toks[eqs[0]].1, 1.0, &mut coef, &mut constant)?;
             side(rhs, names, line, end_col, -1.0, &mut coef, &mut constant)?;
+            if !constant.is_finite() || coef.iter().any(|c| !c.is_finite()) {
+                return Err(err(
+                    line,
+                    item_offset + 1,
+                    "the terms sum beyond double range (about 1.8e308)",
+                ));
+            }
             let terms: Vec<(usize, f64)> = coef
                 .iter()
                 .enumerate()
@@ -381,10 +388,47 @@ mod tests {
         }
         let e = parse("a = 1\n\n b + q = 0", &names()).unwrap_err().to_string();
         assert!(e.contains("line 3, character 6"), "{e}");
-        for (text, want) in [("a < 1", "strict '<'"), ("a >= b <= 1", "more than one")] {
+        for (text, want) in [
+            ("a < 1", "strict '<'"),
+            ("a >= b <= 1", "more than one"),
+            ("a = 1e308 + 1e308", "beyond double range"),
+        ] {
             let e = parse(text, &names()).unwrap_err().to_string();
             assert!(e.contains(want), "{text}: {e}");
         }
+    }
+
+    /// Hostile text (random characters from the grammar's alphabet and beyond) gives a
+    /// typed error or a parse, never a panic; every parse has its relation and terms.
+    #[test]
+    fn random_text_never_panics() {
+        let alphabet: Vec<char> = "ab_c.d 0123456789eE+-−*·=<>≤≥;#\n\t?é∞.".chars().collect();
+        let mut state = 0x9E37_79B9_7F4A_7C15u64;
+        let mut next = || {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            state
+        };
+        let (mut parsed, mut refused) = (0, 0);
+        for _ in 0..20_000 {
+            let len = (next() % 24) as usize;
+            let text: String = (0..len)
+                .map(|_| alphabet[(next() % alphabet.len() as u64) as usize])
+                .collect();
+            match parse(&text, &names()) {
+                Ok(rs) => {
+                    parsed += 1;
+                    assert!(rs.iter().all(|r| !r.terms.is_empty() && r.rhs.is_finite()), "{text:?}");
+                }
+                Err(e) => {
+                    refused += 1;
+                    assert!(e.to_string().contains("1-based"), "{text:?}: {e}");
+                }
+            }
+        }
+        assert_eq!(parsed + refused, 20_000);
+        assert!(parsed > 0 && refused > 0, "parsed {parsed}, refused {refused}");
     }
 
     #[test]
